@@ -1,0 +1,67 @@
+"""check, build and info: the curated files and the store built from them."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import click
+
+from ..output import emit, format_option, store_option
+
+
+def _data_dir(data_dir):
+    if data_dir:
+        return Path(data_dir)
+    from ..api.locate import bundled_data_dir
+
+    return bundled_data_dir()
+
+
+@click.command("check")
+@click.argument("data_dir", required=False, type=click.Path(file_okay=False))
+@click.option("--strict", is_flag=True, help="Treat warnings as errors (exit 1).")
+def check_cmd(data_dir, strict):
+    """Validate curated files; exit 0 clean, 1 errors, 2 warnings only."""
+    from ..ingest import check
+
+    root = _data_dir(data_dir)
+    findings, tree, frame = check(root)
+    for finding in findings.sorted():
+        click.echo(str(finding))
+    errors, warnings = len(findings.errors), len(findings.warnings)
+    click.echo(f"{root}: {len(frame)} value rows in {len(tree.file_hashes)} files: "
+               f"{errors} error(s), {warnings} warning(s)", err=True)
+    sys.exit(1 if errors or (strict and warnings) else 2 if warnings else 0)
+
+
+@click.command("build")
+@click.argument("data_dir", required=False, type=click.Path(file_okay=False))
+@click.option("--out", "out", type=click.Path(dir_okay=False), default="bodyplan.sqlite", show_default=True,
+              help="Where to write the store.")
+def build_cmd(data_dir, out):
+    """Validate, then build the store atomically (a failed build leaves OUT untouched)."""
+    from ..ingest import CuratedDataError, build
+
+    try:
+        result = build(_data_dir(data_dir), out)
+    except CuratedDataError as exc:
+        for finding in exc.findings.sorted():
+            click.echo(str(finding), err=True)
+        click.echo(f"error: {len(exc.findings.errors)} error(s); {out} left unchanged", err=True)
+        sys.exit(1)
+    for finding in result.warnings:
+        click.echo(str(finding), err=True)
+    c = result.counts
+    click.echo(f"built {result.path}: {c['curated_values']} values, {c['species']} species, "
+               f"{c['sources']} sources; content hash {result.content_hash[:16]}")
+
+
+@click.command("info")
+@format_option()
+@store_option
+def info_cmd(fmt, store_path):
+    """What the store holds: counts, sources, content hash."""
+    from ..api import open_store
+
+    emit(open_store(store_path).info(), fmt, title="bodyplan store")

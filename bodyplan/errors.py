@@ -1,0 +1,19 @@
+"""The exceptions a user can cause; the CLI prints them as one clean line."""
+
+from __future__ import annotations
+
+
+def expected_errors() -> tuple[type[BaseException], ...]:
+    from .api import StoreNotFoundError, UnknownIdError
+    from .ingest import CuratedDataError
+    from .units import UnitError
+
+    extra = []
+    try:
+        from .api.parameters import ParameterSetError
+
+        extra.append(ParameterSetError)
+    except ImportError:
+        pass
+    return (StoreNotFoundError, UnknownIdError, CuratedDataError, UnitError, FileNotFoundError,
+            FileExistsError, ValueError, *extra)

@@ -1,0 +1,1 @@
+"""Curated source files: vocabularies, BibTeX and one values CSV per source."""

@@ -1,0 +1,185 @@
+"""Build the SQLite store: validate everything first, write a temporary file, rename on success."""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import sqlite3
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from ..schema import TABLES, descriptors
+from .findings import CuratedDataError, Findings
+from .plausibility import check_plausibility
+from .read import CuratedTree, read_tree
+from .validate import validate
+
+HASHED_TABLES = ["species", "life_stages", "compartments", "quantities", "sources", "curated_values",
+                 "input_files"]
+
+
+@dataclass
+class BuildResult:
+    path: Path
+    content_hash: str
+    counts: dict[str, int]
+    warnings: list
+
+
+def check(root: str | Path) -> tuple[Findings, CuratedTree, pd.DataFrame]:
+    """Read and validate a curated tree; every finding of every layer, nothing written."""
+    findings = Findings()
+    tree = read_tree(root, findings)
+    frame = validate(tree, findings) if tree.values is not None else pd.DataFrame()
+    if not findings.errors:
+        check_plausibility(frame, tree, findings)
+    return findings, tree, frame
+
+
+def format_citation(fields: dict) -> str:
+    authors = [a.strip() for a in fields.get("author", "").replace("\n", " ").split(" and ") if a.strip()]
+    surnames = [a.split(",")[0].strip() if "," in a else a.split()[-1] for a in authors]
+    who = (surnames[0] + " et al." if len(surnames) > 2 else " & ".join(surnames)) or \
+        fields.get("organization", fields.get("publisher", "Anonymous"))
+    where = fields.get("journal") or fields.get("booktitle") or fields.get("publisher") or ""
+    detail = where
+    if fields.get("volume"):
+        detail += f" {fields['volume']}"
+    if fields.get("pages"):
+        detail += f":{fields['pages'].replace('--', '–')}"
+    title = fields.get("title", "").strip("{}").rstrip(".")
+    text = f"{who} ({fields.get('year', 'n.d.')}). {title}. {detail}".strip()
+    return text.rstrip(".") + "."
+
+
+def _none(x):
+    """numpy/pandas missing markers and empty strings to SQL NULL; numpy scalars to Python."""
+    if x is None or (isinstance(x, float) and np.isnan(x)) or x == "":
+        return None
+    return x.item() if isinstance(x, np.generic) else x
+
+
+def _vocab_rows(frame: pd.DataFrame, columns: list[str]) -> list[tuple]:
+    frame = frame.sort_values("id")
+    return [tuple(_none(v.strip() if isinstance(v, str) else v) for v in row)
+            for row in frame[columns].itertuples(index=False)]
+
+
+def _value_rows(frame: pd.DataFrame) -> list[tuple]:
+    frame = frame.sort_values(["_source", "_line"])
+    strip = {c: frame[c].str.strip().replace("", None) for c in
+             ("id", "species", "life_stage", "age", "sex", "strain", "compartment", "quantity", "unit",
+              "uncertainty", "basis", "locator", "missing_reason", "comment")}
+
+    def num(col):
+        arr = frame[col].to_numpy(dtype=float)
+        return [None if np.isnan(v) else float(v) for v in arr]
+
+    n = [None if np.isnan(v) else int(v) for v in frame["_n"].to_numpy(dtype=float)]
+    columns = [
+        frame["_source"].tolist(), strip["id"].tolist(), strip["species"].tolist(), strip["life_stage"].tolist(),
+        strip["age"].tolist(), num("_age_days"), strip["sex"].tolist(), strip["strain"].tolist(),
+        strip["compartment"].tolist(), strip["quantity"].tolist(), frame["_kind"].tolist(), num("_value"),
+        strip["unit"].tolist(), num("_value_canonical"), frame["_unit_canonical"].tolist(),
+        frame["_normalisation"].tolist(), strip["uncertainty"].tolist(), num("_spread"), num("_low"),
+        num("_high"), num("_sd_canonical"), num("_low_canonical"), num("_high_canonical"), n,
+        num("_body_mass_kg"), strip["basis"].tolist(), strip["locator"].tolist(),
+        (frame["verified"].str.strip() == "yes").astype(int).tolist(), strip["missing_reason"].tolist(),
+        strip["comment"].tolist(), frame["_file"].tolist(), frame["_line"].astype(int).tolist(),
+    ]
+    return list(zip(*columns))
+
+
+VALUE_COLUMNS = ["source_id", "row_id", "species_id", "life_stage_id", "age", "age_days", "sex", "strain",
+                 "compartment_id", "quantity_id", "quantity_kind", "value", "unit", "value_canonical",
+                 "unit_canonical", "normalisation", "uncertainty", "spread", "low", "high", "sd_canonical",
+                 "low_canonical", "high_canonical", "n", "subject_body_mass_kg", "basis", "locator", "verified",
+                 "missing_reason", "comment", "file", "line"]
+
+
+def content_hash(conn: sqlite3.Connection) -> str:
+    digest = hashlib.sha256()
+    for table in HASHED_TABLES:
+        digest.update(table.encode())
+        for row in conn.execute(f'SELECT * FROM "{table}" ORDER BY 1'):
+            digest.update(repr(row).encode())
+    return digest.hexdigest()
+
+
+def _create_schema(path: Path) -> None:
+    from sqlalchemy import create_engine
+    from sqlmodel import SQLModel
+
+    engine = create_engine(f"sqlite:///{path}")
+    SQLModel.metadata.create_all(engine, tables=[t.__table__ for t in TABLES])
+    engine.dispose()
+
+
+def _insert(conn, table: str, columns: list[str], rows: list[tuple]) -> None:
+    marks = ", ".join("?" for _ in columns)
+    names = ", ".join(f'"{c}"' for c in columns)
+    conn.executemany(f'INSERT INTO "{table}" ({names}) VALUES ({marks})', rows)
+
+
+def write_store(tree: CuratedTree, frame: pd.DataFrame, path: Path) -> tuple[str, dict[str, int]]:
+    _create_schema(path)
+    conn = sqlite3.connect(path, isolation_level=None)  # explicit transaction below
+    try:
+        conn.execute("PRAGMA foreign_keys = ON")
+        conn.execute("PRAGMA synchronous = OFF")  # a temporary file: a crash just discards it
+        conn.execute("BEGIN")
+        conn.execute("PRAGMA defer_foreign_keys = ON")  # part_of may name a compartment inserted later
+        for name, descriptor in descriptors.VOCABULARIES.items():
+            columns = descriptors.names(descriptor)
+            rows = _vocab_rows(tree.vocab[name], columns)
+            _insert(conn, name, columns, rows)
+        source_rows = []
+        for src in sorted(tree.sources, key=lambda s: s["key"]):
+            f = src["fields"]
+            year = f.get("year", "")
+            source_rows.append((src["key"], src["type"], f.get("author"), f.get("title"),
+                                f.get("journal") or f.get("booktitle") or f.get("publisher"),
+                                int(year) if year.isdigit() else None, f.get("volume"), f.get("pages"),
+                                f.get("doi"), format_citation(f), src["bibtex"], f.get("note")))
+        _insert(conn, "sources", ["id", "entry_type", "author", "title", "container", "year", "volume", "pages",
+                                  "doi", "citation", "bibtex", "note"], source_rows)
+        _insert(conn, "curated_values", VALUE_COLUMNS, _value_rows(frame))
+        _insert(conn, "input_files", ["path", "sha256"], sorted(tree.file_hashes.items()))
+        digest = content_hash(conn)
+        counts = {t: conn.execute(f'SELECT count(*) FROM "{t}"').fetchone()[0]
+                  for t in ("species", "sources", "curated_values")}
+        from .. import __version__
+
+        _insert(conn, "build_info", ["key", "value"], [
+            ("content_hash", digest), ("bodyplan_version", __version__),
+            ("inputs_hash", hashlib.sha256("".join(f"{k}{v}" for k, v in
+                                                    sorted(tree.file_hashes.items())).encode()).hexdigest()),
+        ])
+        conn.execute("COMMIT")
+    finally:
+        conn.close()
+    return digest, counts
+
+
+def build(root: str | Path, out: str | Path) -> BuildResult:
+    """Validate ``root`` and build the store at ``out``; on any error ``out`` is left as it was."""
+    findings, tree, frame = check(root)
+    if findings.errors:
+        raise CuratedDataError(findings)
+    out = Path(out)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{out.name}.", suffix=".tmp", dir=out.parent)
+    os.close(fd)
+    tmp_path = Path(tmp)
+    try:
+        tmp_path.unlink()
+        digest, counts = write_store(tree, frame, tmp_path)
+        os.replace(tmp_path, out)
+    except BaseException:
+        tmp_path.unlink(missing_ok=True)
+        raise
+    return BuildResult(out, digest, counts, findings.warnings)

@@ -1,0 +1,147 @@
+"""Read a curated tree into DataFrames, keeping each row's file and line."""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import io
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+
+from ..schema import descriptors
+from .findings import Findings
+
+VOCAB_DIR = "vocab"
+VALUES_DIR = "values"
+BIB_FILE = "sources.bib"
+
+
+@dataclass
+class CuratedTree:
+    root: Path
+    vocab: dict[str, pd.DataFrame] = field(default_factory=dict)
+    values: pd.DataFrame | None = None
+    sources: list[dict] = field(default_factory=list)
+    file_hashes: dict[str, str] = field(default_factory=dict)
+    # (file, column) pairs whose column is missing: per-row findings for them would only repeat it
+    missing_columns: set[tuple[str, str]] = field(default_factory=set)
+
+
+def _decode(raw: bytes, rel: str, findings: Findings) -> str | None:
+    try:
+        return raw.decode("utf-8")
+    except UnicodeDecodeError as err:
+        line = raw[: err.start].count(b"\n") + 1
+        findings.error(rel, line, "file", f"byte 0x{raw[err.start]:02x} is not UTF-8; save the file as UTF-8")
+        return None
+
+
+def _rows(text: str, rel: str, width: int, findings: Findings) -> tuple[list[list[str]], list[int]]:
+    """Row by row with the csv module: exact line numbers, and every malformed row reported."""
+    reader = csv.reader(io.StringIO(text, newline=""))
+    rows, lines = [], []
+    start = 1
+    for i, row in enumerate(reader):
+        line = start
+        start = reader.line_num + 1
+        if i == 0 or not row:
+            continue
+        if len(row) != width:
+            findings.error(rel, line, "row", f"has {len(row)} fields but the header has {width}; "
+                           "quote fields that contain commas")
+            continue
+        rows.append(row)
+        lines.append(line)
+    return rows, lines
+
+
+def read_table(path: Path, rel: str, descriptor: dict, findings: Findings,
+               missing: set[tuple[str, str]]) -> pd.DataFrame | None:
+    """One curated CSV as strings, with ``_file`` and ``_line``; None if unreadable."""
+    text = _decode(path.read_bytes(), rel, findings)
+    if text is None:
+        return None
+    if not text.strip():
+        findings.error(rel, 1, "file", "is empty; it needs at least the header line")
+        return None
+    header = next(csv.reader(io.StringIO(text)))
+    expected = descriptors.names(descriptor)
+    for name in header:
+        if name not in expected:
+            findings.error(rel, 1, name, f"unknown column {name!r}; the columns are: {','.join(expected)}")
+    if len(set(header)) != len(header):
+        findings.error(rel, 1, "header", "repeats a column name; each column appears once")
+        return None
+    rows, lines = _rows(text, rel, len(header), findings)
+    frame = pd.DataFrame(rows, columns=header, dtype=str)
+    for name in expected:
+        if name not in frame.columns:
+            findings.error(rel, 1, name, f"missing column {name!r}; the header must be: {','.join(expected)}")
+            missing.add((rel, name))
+            frame[name] = ""
+    frame = frame[expected].copy()
+    frame["_file"] = rel
+    frame["_line"] = lines
+    return frame
+
+
+def _hash(path: Path) -> str:
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+def read_sources(path: Path, rel: str, findings: Findings) -> list[dict]:
+    import bibtexparser  # only the ingest needs it
+
+    text = _decode(path.read_bytes(), rel, findings)
+    if text is None:
+        return []
+    library = bibtexparser.parse_string(text)
+    for block in library.failed_blocks:
+        what = "repeats an entry key; keep one entry per key" if "Duplicate" in type(block).__name__ \
+            else "is not valid BibTeX; check braces and commas"
+        findings.error(rel, block.start_line + 1, "entry", f"this entry {what}")
+    sources = []
+    for entry in library.entries:
+        fields = {k.lower(): f.value for k, f in entry.fields_dict.items()}
+        raw = text.splitlines()[entry.start_line:]
+        sources.append({"key": entry.key, "type": entry.entry_type.lower(), "fields": fields,
+                        "line": entry.start_line + 1, "bibtex": entry.raw if entry.raw else "\n".join(raw[:1])})
+    return sources
+
+
+def read_tree(root: str | Path, findings: Findings) -> CuratedTree:
+    root = Path(root)
+    tree = CuratedTree(root=root)
+    if not root.is_dir():
+        findings.error(str(root), 0, "directory", "does not exist; give the folder holding vocab/, values/ "
+                       "and sources.bib")
+        return tree
+    for name, descriptor in descriptors.VOCABULARIES.items():
+        path = root / VOCAB_DIR / f"{name}.csv"
+        rel = f"{VOCAB_DIR}/{name}.csv"
+        if not path.exists():
+            findings.error(rel, 0, "file", f"is missing; every curated tree needs {rel}")
+            continue
+        tree.file_hashes[rel] = _hash(path)
+        frame = read_table(path, rel, descriptor, findings, tree.missing_columns)
+        if frame is not None:
+            tree.vocab[name] = frame
+    bib = root / BIB_FILE
+    if bib.exists():
+        tree.file_hashes[BIB_FILE] = _hash(bib)
+        tree.sources = read_sources(bib, BIB_FILE, findings)
+    else:
+        findings.error(BIB_FILE, 0, "file", "is missing; sources are BibTeX entries in sources.bib")
+    frames = []
+    for path in sorted((root / VALUES_DIR).glob("*.csv")):
+        rel = f"{VALUES_DIR}/{path.name}"
+        tree.file_hashes[rel] = _hash(path)
+        frame = read_table(path, rel, descriptors.VALUES, findings, tree.missing_columns)
+        if frame is not None:
+            frame["_source"] = path.stem
+            frames.append(frame)
+    columns = descriptors.names(descriptors.VALUES) + ["_file", "_line", "_source"]
+    tree.values = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=columns)
+    return tree

@@ -1,0 +1,143 @@
+"""The store's tables, defined once as SQLModel classes.
+
+Constraints live in the database too (foreign keys, uniqueness, CHECKs), so a store
+built by any route refuses rows the curated-file validation would refuse.
+"""
+
+from __future__ import annotations
+
+from typing import Optional
+
+from sqlalchemy import CheckConstraint, Column, ForeignKey, String, UniqueConstraint
+from sqlmodel import Field, SQLModel
+
+from .descriptors import BASES, SEXES, UNCERTAINTY_KINDS
+
+
+def _ref(target: str, **kw):
+    """A text foreign key to ``target`` ("table.column")."""
+    return Field(sa_column=Column(String, ForeignKey(target), **kw))
+
+
+def _in(column: str, allowed: list[str]) -> str:
+    return f"{column} IN ({', '.join(repr(a) for a in allowed)})"
+
+
+class Species(SQLModel, table=True):
+    __tablename__ = "species"
+    id: str = Field(primary_key=True)
+    scientific_name: str
+    common_name: str
+    ncbi_taxon: int = Field(gt=0)
+    taxon_class: str
+    diet: Optional[str] = None
+    id_note: Optional[str] = None
+
+
+class LifeStage(SQLModel, table=True):
+    __tablename__ = "life_stages"
+    id: str = Field(primary_key=True)
+    label: str
+    description: Optional[str] = None
+
+
+class Compartment(SQLModel, table=True):
+    __tablename__ = "compartments"
+    id: str = Field(primary_key=True)
+    label: str
+    uberon: Optional[str] = None
+    kind: str
+    part_of: Optional[str] = _ref("compartments.id", nullable=True)
+    id_note: Optional[str] = None
+
+
+class QuantityDef(SQLModel, table=True):
+    __tablename__ = "quantities"
+    id: str = Field(primary_key=True)
+    label: str
+    canonical_unit: str
+    kind: str
+    fraction_of: Optional[str] = None
+    per: Optional[str] = None
+    plausible_range: Optional[str] = None
+    description: Optional[str] = None
+
+
+class Source(SQLModel, table=True):
+    __tablename__ = "sources"
+    id: str = Field(primary_key=True)
+    entry_type: str
+    author: Optional[str] = None
+    title: Optional[str] = None
+    container: Optional[str] = None  # journal, book or publisher
+    year: Optional[int] = None
+    volume: Optional[str] = None
+    pages: Optional[str] = None
+    doi: Optional[str] = None
+    citation: str  # formatted one-line citation
+    bibtex: str
+    note: Optional[str] = None
+
+
+class Value(SQLModel, table=True):
+    __tablename__ = "curated_values"
+    __table_args__ = (
+        UniqueConstraint("source_id", "row_id"),
+        CheckConstraint(_in("sex", SEXES), name="sex_known"),
+        CheckConstraint(_in("uncertainty", UNCERTAINTY_KINDS), name="uncertainty_known"),
+        CheckConstraint(_in("basis", BASES), name="basis_known"),
+        CheckConstraint("verified IN (0, 1)", name="verified_flag"),
+        CheckConstraint("value_canonical IS NULL OR value_canonical >= 0", name="non_negative"),
+        CheckConstraint("quantity_kind <> 'fraction' OR value_canonical <= 1", name="fraction_at_most_1"),
+        CheckConstraint("(value IS NULL) = (missing_reason IS NOT NULL)", name="empty_only_with_reason"),
+        CheckConstraint("low IS NULL OR high IS NULL OR low <= high", name="bounds_ordered"),
+        CheckConstraint("subject_body_mass_kg IS NULL OR subject_body_mass_kg > 0", name="positive_body_mass"),
+    )
+    id: Optional[int] = Field(default=None, primary_key=True)
+    source_id: str = _ref("sources.id", nullable=False, index=True)
+    row_id: str
+    species_id: str = _ref("species.id", nullable=False, index=True)
+    life_stage_id: str = _ref("life_stages.id", nullable=False)
+    age: Optional[str] = None
+    age_days: Optional[float] = None
+    sex: str
+    strain: Optional[str] = None
+    compartment_id: str = _ref("compartments.id", nullable=False, index=True)
+    quantity_id: str = _ref("quantities.id", nullable=False, index=True)
+    quantity_kind: str
+    value: Optional[float] = None
+    unit: str
+    value_canonical: Optional[float] = None
+    unit_canonical: str
+    normalisation: str  # none, body_mass, tissue_mass or body_surface
+    uncertainty: str
+    spread: Optional[float] = None
+    low: Optional[float] = None
+    high: Optional[float] = None
+    sd_canonical: Optional[float] = None  # sd in the canonical unit, from sd, se·√n, cv or a ci95
+    low_canonical: Optional[float] = None
+    high_canonical: Optional[float] = None
+    n: Optional[int] = None
+    subject_body_mass_kg: Optional[float] = None
+    basis: str
+    locator: str
+    verified: bool
+    missing_reason: Optional[str] = None
+    comment: Optional[str] = None
+    file: str
+    line: int
+
+
+class BuildInfo(SQLModel, table=True):
+    __tablename__ = "build_info"
+    key: str = Field(primary_key=True)
+    value: str
+
+
+class InputFile(SQLModel, table=True):
+    __tablename__ = "input_files"
+    path: str = Field(primary_key=True)
+    sha256: str
+
+
+TABLES = [Species, LifeStage, Compartment, QuantityDef, Source, Value, BuildInfo, InputFile]
