@@ -15,6 +15,17 @@ COMMANDS = {  # command name → "module:function" under bodyplan.commands
     "check": "curate:check_cmd",
     "build": "curate:build_cmd",
     "info": "curate:info_cmd",
+    "values": "values:values_cmd",
+    "params": "params:params_cmd",
+    "gaps": "gaps:gaps_cmd",
+    "allometry": "gaps:allometry_cmd",
+    "serve": "site:serve_cmd",
+    "site": "site:site_cmd",
+    "add": "curator:add_cmd",
+    "lint": "curator:lint_cmd",
+    "trace": "curator:trace_cmd",
+    "diff": "curator:diff_cmd",
+    "export": "curator:export_cmd",
 }
 
 

@@ -1,0 +1,1 @@
+"""The read-only site: datasette over the store, with bodyplan metadata and provenance."""
