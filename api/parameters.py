@@ -54,6 +54,8 @@ class Cell:
                "fill": self.fill, "sources": list(self.sources), "method": self.method}
         if self.low is not None:
             out["interval"] = [_round(self.low), _round(self.high)]
+            out["interval_kind"] = ("95 % prediction interval" if "prediction interval" in self.method
+                                    else "range of the study values")
         if self.reason:
             out["reason"] = self.reason
         return out
@@ -313,20 +315,22 @@ def _check(name: str, ok: bool, detail: str) -> dict:
 
 
 def _source_sum_checks(resolver: Resolver, ps: ParameterSet) -> None:
-    """Fractions given by one source should not exceed the whole."""
-    rows = resolver.rows
-    comps = ps.layout.members() - {"whole_body"}
+    """Fractions given by one source (one group of subjects) should not exceed the whole."""
+    comps = ps.layout.members() - {"whole_body", "lung"}
     for quantity, limit in (("tissue_mass_fraction", 1.0), ("blood_flow_fraction", 1.0 + 0.1)):
-        sub = rows[(rows["quantity_id"] == quantity) & rows["compartment_id"].isin(comps)]
-        if quantity == "blood_flow_fraction":
-            sub = sub[~sub["compartment_id"].isin(PORTAL_ORGANS | {"lung"})] if (sub["compartment_id"] == "liver").any() \
-                else sub[sub["compartment_id"] != "lung"]
-        for (source, sex, strain, age), group in sub.groupby(["source_id", "sex", "strain", "age"], dropna=False):
-            total = group.groupby("compartment_id")["value_canonical"].mean().sum()
+        groups: dict[tuple, dict[str, float]] = {}
+        for r in resolver.all_rows:
+            if r["quantity_id"] == quantity and r["compartment_id"] in comps:
+                key = (r["source_id"], r["sex"], r["strain"], r["age"])
+                groups.setdefault(key, {})[r["compartment_id"]] = r["value_canonical"]
+        for (source, *_), by_comp in groups.items():
+            if quantity == "blood_flow_fraction" and "liver" in by_comp:  # total hepatic flow carries the portal organs
+                by_comp = {c: v for c, v in by_comp.items() if c not in PORTAL_ORGANS}
+            total = sum(by_comp.values())
             if total > limit:
                 ps.checks.append(_check(f"{quantity}_sum_{source}", False,
-                                        f"{source}: {quantity} of {len(group)} compartments sum to {total:.3f} "
-                                        f"(limit {limit:g})"))
+                                        f"{source}: {quantity} of {len(by_comp)} compartments sum to "
+                                        f"{total:.3f} (limit {limit:g})"))
 
 
 def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | None = None, body_weight=None,

@@ -1,0 +1,100 @@
+"""bodyplan params: the modeller's parameter set."""
+
+from __future__ import annotations
+
+import sys
+
+import click
+
+from ..output import store_option
+
+
+def _fmt(value, sd=None, se=None, low=None, high=None) -> str:
+    if value is None:
+        return "—"
+    text = f"{value:.4g}"
+    spread = sd if sd is not None else se
+    if spread is not None:
+        text += f" ± {spread:.2g}{'' if sd is not None else ' (se)'}"
+    if low is not None and high is not None and spread is None:
+        text += f" [{low:.3g}–{high:.3g}]"
+    return text
+
+
+def render_table(ps, file=None) -> None:
+    """The view a modeller reads: compartment, volume, flow, how obtained, sources; gaps in colour."""
+    from rich.console import Console
+    from rich.table import Table
+
+    from .. import CAUTION
+
+    d = ps.to_dict()
+    console = Console(file=file or sys.stdout, width=None if (file or sys.stdout).isatty() else 160)
+    bw, co = d["body_weight"], d["cardiac_output"]
+    title = (f"{ps.species}, {ps.life_stage}{', ' + ps.sex if ps.sex else ''}: {ps.layout.name} layout, "
+             f"body weight {_fmt(bw['value'])} kg ({bw['fill']})")
+    table = Table(title=title, title_justify="left")
+    for name, justify in (("compartment", "left"), (f"volume ({d['compartments'][0]['volume']['unit']})", "right"),
+                          ("how", "left"), (f"blood flow ({co['unit']})", "right"), ("how", "left"),
+                          ("sources", "left")):
+        table.add_column(name, justify=justify, overflow="fold")
+
+    def how(cell):
+        colour = {"gap": "bold red", "allometric": "yellow", "not_applicable": "dim"}.get(cell["fill"], "")
+        text = "n/a" if cell["fill"] == "not_applicable" else cell["fill"]
+        return f"[{colour}]{text}[/]" if colour else text
+
+    def val(cell):
+        v = _fmt(cell["value"], cell["sd"], cell["se"], *(cell.get("interval") or (None, None)))
+        return "[bold red]gap[/]" if cell["fill"] == "gap" else v
+
+    table.add_row("cardiac output", "", "", val(co), how(co), ", ".join(co["sources"]))
+    for c in d["compartments"]:
+        sources = ", ".join(dict.fromkeys(c["volume"]["sources"] + c["blood_flow"]["sources"]))
+        table.add_row(c["compartment"], val(c["volume"]), how(c["volume"]), val(c["blood_flow"]),
+                      how(c["blood_flow"]), sources)
+    console.print(table)
+    console.print(f"liver flow: {d['liver_flow']}")
+    for check in d["checks"]:
+        style = {"pass": "green", "warn": "yellow", "fail": "bold red"}[check["status"]]
+        console.print(f"[{style}]{check['status']}[/] {check['check']}: {check['detail']}")
+    if d["gaps"]:
+        console.print(f"[bold red]{len(d['gaps'])} gap(s)[/]; fill them from other species with "
+                      "--fill allometric, or curate a source (bodyplan gaps shows what is missing)")
+    console.print(f"[italic]{CAUTION}[/]")
+
+
+@click.command("params")
+@click.argument("species")
+@click.option("--stage", "life_stage", default="adult", show_default=True, help="Life stage id.")
+@click.option("--sex", type=click.Choice(["male", "female"]), default=None, help="Use rows of this sex (and mixed).")
+@click.option("--body-weight", default=None, help='Body weight with a unit, e.g. "12 kg" or "26 lb" '
+              "(default: the species' typical body mass).")
+@click.option("--layout", default="whole_body", show_default=True,
+              help="whole_body, rich_slow, or a TOML layout file.")
+@click.option("--fill", type=click.Choice(["none", "allometric"]), default="none", show_default=True,
+              help="Fill gaps from a cross-species allometric fit (recorded on each value).")
+@click.option("--units", type=click.Choice(["SI", "clinical"]), default="SI", show_default=True,
+              help="SI: L and L/h; clinical: mL and mL/min.")
+@click.option("--format", "fmt", type=click.Choice(["table", "csv", "json", "sbml"]), default="table",
+              show_default=True, help="Output format.")
+@click.option("--out", type=click.Path(dir_okay=False), default=None, help="Write to a file instead of stdout.")
+@store_option
+def params_cmd(species, life_stage, sex, body_weight, layout, fill, units, fmt, out, store_path):
+    """A model-ready parameter set for SPECIES, scaled to a body weight, every gap marked."""
+    from ..api import open_store
+
+    ps = open_store(store_path).parameter_set(species, life_stage=life_stage, sex=sex, body_weight=body_weight,
+                                              layout=layout, fill=fill, units=units)
+    text = {"json": ps.to_json, "csv": ps.to_csv, "sbml": ps.to_sbml}.get(fmt)
+    if out:
+        with open(out, "w", encoding="utf-8", newline="\n") as fh:
+            if text:
+                fh.write(text() if fmt != "json" else text() + "\n")
+            else:
+                render_table(ps, file=fh)
+        click.echo(f"wrote {out} ({fmt}, {len(ps.gaps)} gap(s))", err=True)
+    elif text:
+        click.echo(text(), nl=fmt == "json")
+    else:
+        render_table(ps)
