@@ -369,3 +369,25 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
             ps.checks.append({"check": f"density_assumed_{comp}", "status": "warn",
                               "detail": f"{comp}: no tissue density stored; volume uses 1 kg/L"})
     return ps
+
+
+def resolve_parameter(store, species: str, compartment: str, parameter: str, *, life_stage: str = "adult",
+                      sex: str | None = None):
+    """The rows behind one stored compartment's parameter and how they combine, before scaling.
+
+    ``parameter`` is "volume" (result in L per kg body weight), "blood_flow" (fraction of cardiac
+    output), "cardiac_output" (L/h per kg body weight) or "body_weight" (kg). The returned
+    ``Resolved`` has ``estimate`` (value, se, method, sources), ``rows`` (each curated row with
+    its route and its value in the combined form) and ``reason`` for a gap.
+    """
+    store.require("species", species, "species")
+    resolver = Resolver(store, species, life_stage, sex)
+    if parameter == "volume":
+        return resolver.volume_per_kg(compartment)
+    if parameter == "blood_flow":
+        return resolver.flow_fraction(compartment)
+    if parameter == "cardiac_output":
+        return resolver.cardiac_output(1.0)
+    if parameter == "body_weight":
+        return resolver.body_weight
+    raise ParameterSetError(f"parameter must be volume, blood_flow, cardiac_output or body_weight, not {parameter!r}")
