@@ -14,7 +14,7 @@ MIN_SPECIES = 3
 
 def _peer_sets(store, species: str, stage: str, layout) -> dict:
     cache = store.__dict__.setdefault("_peer_sets", {})
-    key = (stage, layout.name, tuple(sorted(layout.compartments.items(), key=lambda kv: kv[0])).__hash__())
+    key = (stage, layout.name, repr(sorted(layout.compartments.items())))
     if key not in cache:
         from .parameters import parameter_set
 
