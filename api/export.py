@@ -1,0 +1,171 @@
+"""Export a store as tidy files with a Frictionless data package descriptor (datapackage.json).
+
+One file per table, one row per record; the descriptor carries each table's Table Schema
+(types, descriptions, primary and foreign keys) so any Frictionless tool can validate it.
+Numbers are written with Python's shortest round-trip form, so reading them back gives the
+stored floats exactly.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import math
+from pathlib import Path
+
+from ..schema import descriptors
+
+TABLES = ["species", "life_stages", "compartments", "quantities", "sources", "curated_values", "build_info"]
+FORMATS = ["csv", "json", "parquet"]
+SQL_TYPES = {"INTEGER": "integer", "FLOAT": "number", "REAL": "number", "BOOLEAN": "boolean"}
+DROPPED = {"curated_values": {"id"}}  # the store's row number: identity is (source_id, row_id)
+
+# Columns of curated_values that are not curated columns themselves (or are renamed in the store).
+VALUE_DESCRIPTIONS = {
+    "source_id": "Citation key of the source (sources.id); the curated file's name.",
+    "row_id": "The row's id within its source file.",
+    "age_days": "The age converted to days.",
+    "quantity_kind": "absolute, fraction or ratio (from the quantity).",
+    "value_canonical": "The value converted to the canonical unit.",
+    "unit_canonical": "Canonical unit of the value (the quantity's unit, or its per-mass or per-surface form).",
+    "normalisation": "none, body_mass, tissue_mass or body_surface: what a per-unit value is per.",
+    "sd_canonical": "Standard deviation in the canonical unit, from sd, se and n, cv, or a ci95 and n.",
+    "low_canonical": "Lower bound in the canonical unit.",
+    "high_canonical": "Upper bound in the canonical unit.",
+    "subject_body_mass_kg": "Subjects' mean body mass in kg.",
+    "file": "Curated file the row came from.",
+    "line": "Line of the row in that file.",
+}
+RENAMED = {"species_id": "species", "life_stage_id": "life_stage", "compartment_id": "compartment",
+           "quantity_id": "quantity"}
+FOREIGN = {
+    "curated_values": [("source_id", "sources"), ("species_id", "species"), ("life_stage_id", "life_stages"),
+                       ("compartment_id", "compartments"), ("quantity_id", "quantities")],
+    "compartments": [("part_of", "compartments")],
+}
+PRIMARY = {"curated_values": ["source_id", "row_id"], "build_info": ["key"]}
+TABLE_DESCRIPTIONS = {
+    "sources": "Sources: one BibTeX entry per curated file, with a formatted citation.",
+    "curated_values": "Curated values: one row per value printed in a source, as reported and in canonical units.",
+    "build_info": "How the store was built: content hash, bodyplan version, hash of the input files.",
+}
+
+
+class ExportError(ValueError):
+    """An export that cannot be made as asked (an unsupported format, a missing library)."""
+
+
+def _description(table: str, column: str) -> str:
+    if table in descriptors.VOCABULARIES:
+        for spec in descriptors.VOCABULARIES[table]["fields"]:
+            if spec["name"] == column:
+                return spec["description"]
+    if table == "curated_values":
+        if column in VALUE_DESCRIPTIONS:
+            return VALUE_DESCRIPTIONS[column]
+        wanted = RENAMED.get(column, column)
+        for spec in descriptors.VALUES["fields"]:
+            if spec["name"] == wanted:
+                return spec["description"]
+    return ""
+
+
+def table_schema(store, table: str) -> dict:
+    """A Table Schema for one store table, from SQLite's column types and the curated descriptors."""
+    fields = []
+    for col in store.query(f'PRAGMA table_info("{table}")'):
+        name = col["name"]
+        if name in DROPPED.get(table, ()):
+            continue
+        spec = {"name": name, "type": SQL_TYPES.get(col["type"].upper(), "string")}
+        if description := _description(table, name):
+            spec["description"] = description
+        if col["notnull"] or col["pk"]:
+            spec["constraints"] = {"required": True}
+        fields.append(spec)
+    schema = {"fields": fields}
+    pk = PRIMARY.get(table) or [c["name"] for c in store.query(f'PRAGMA table_info("{table}")') if c["pk"]]
+    schema["primaryKey"] = pk
+    if table in FOREIGN:
+        schema["foreignKeys"] = [{"fields": col, "reference": {"resource": "" if target == table else target,
+                                                               "fields": "id"}}
+                                 for col, target in FOREIGN[table]]
+    return schema
+
+
+def _cell(value, kind: str):
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return None
+    if kind == "boolean":
+        return bool(value)
+    if kind == "number":
+        return float(value)
+    return value
+
+
+def _rows(store, table: str, schema: dict) -> list[list]:
+    names = [f["name"] for f in schema["fields"]]
+    kinds = [f["type"] for f in schema["fields"]]
+    cols = ", ".join(f'"{n}"' for n in names)
+    order = ", ".join(f'"{n}"' for n in schema["primaryKey"])
+    return [[_cell(v, k) for v, k in zip(row, kinds)]
+            for row in store.query(f'SELECT {cols} FROM "{table}" ORDER BY {order}')]
+
+
+def _csv_text(value) -> str:
+    if value is None:
+        return ""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, float):
+        return repr(value)  # shortest text that reads back to the same float
+    return str(value)
+
+
+def export_store(store, out_dir: str | Path, fmt: str = "csv") -> Path:
+    """Write every table of ``store`` to ``out_dir`` plus datapackage.json; returns the descriptor's path."""
+    from .. import CAUTION, __version__
+
+    if fmt == "parquet":
+        raise ExportError("parquet export is not available (it would need pyarrow, which bodyplan does not "
+                          "install); use --format csv or --format json")
+    if fmt not in ("csv", "json"):
+        raise ExportError(f"unknown export format {fmt!r}; use csv or json")
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    build = store.build_info()
+    resources = []
+    for table in TABLES:
+        schema = table_schema(store, table)
+        rows = _rows(store, table, schema)
+        path = out / f"{table}.{fmt}"
+        if fmt == "csv":
+            with open(path, "w", encoding="utf-8", newline="") as f:
+                writer = csv.writer(f, lineterminator="\n")
+                writer.writerow([fl["name"] for fl in schema["fields"]])
+                writer.writerows([_csv_text(v) for v in row] for row in rows)
+        else:
+            names = [fl["name"] for fl in schema["fields"]]
+            path.write_text(json.dumps([dict(zip(names, row)) for row in rows], ensure_ascii=False, indent=1) + "\n",
+                            encoding="utf-8")
+        resource = {"name": table, "path": path.name, "profile": "tabular-data-resource", "format": fmt,
+                    "mediatype": "text/csv" if fmt == "csv" else "application/json", "encoding": "utf-8",
+                    "schema": schema}
+        if table in TABLE_DESCRIPTIONS:
+            resource["description"] = TABLE_DESCRIPTIONS[table]
+        elif table in descriptors.VOCABULARIES:
+            resource["description"] = descriptors.VOCABULARIES[table]["description"]
+        resources.append(resource)
+    package = {
+        "profile": "tabular-data-package",
+        "name": "bodyplan",
+        "title": "bodyplan: curated species physiology for PBPK modelling",
+        "description": f"Every value with its source, locator, unit and uncertainty. {CAUTION}",
+        "version": __version__,
+        "x-content-hash": build.get("content_hash", ""),
+        "x-inputs-hash": build.get("inputs_hash", ""),
+        "resources": resources,
+    }
+    descriptor = out / "datapackage.json"
+    descriptor.write_text(json.dumps(package, indent=2, ensure_ascii=False) + "\n", encoding="utf-8")
+    return descriptor

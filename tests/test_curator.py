@@ -1,0 +1,221 @@
+"""The curator's workflow: add a source, plausibility warnings, trace a parameter to its rows."""
+
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from bodyplan.cli import cli
+from bodyplan.ingest import build, check
+from bodyplan.schema import descriptors
+
+FIXTURE = Path(__file__).parent / "data" / "curator"
+HEADER = ",".join(descriptors.names(descriptors.VALUES))
+GOOD_BIB = """@Article{new2024,
+  Author = {Tester, Dee},
+  title = {Invented source D for the bodyplan tests},
+  journal = {Nowhere}, year = 2024,
+}
+"""
+
+
+@pytest.fixture
+def tree(tmp_path) -> Path:
+    root = tmp_path / "tree"
+    shutil.copytree(FIXTURE, root)
+    return root
+
+
+def snapshot(root: Path) -> dict[str, bytes]:
+    return {str(p.relative_to(root)): p.read_bytes() for p in sorted(root.rglob("*")) if p.is_file()}
+
+
+def append(root: Path, source: str, line: str) -> int:
+    """Append a row to a values file; returns its line number."""
+    path = root / "values" / f"{source}.csv"
+    text = path.read_text()
+    path.write_text(text + line + "\n")
+    return text.count("\n") + 1
+
+
+def warnings_of(root: Path) -> list[str]:
+    findings, _tree, _frame = check(root)
+    assert not findings.errors, findings.errors
+    return [str(f) for f in findings.warnings]
+
+
+# --- add -------------------------------------------------------------------------------------------
+
+def test_add_scaffolds_a_valid_source(tree, tmp_path):
+    bib = tmp_path / "new.bib"
+    bib.write_text(GOOD_BIB)
+    result = CliRunner().invoke(cli, ["add", "new2024", "--data", str(tree), "--bibtex", str(bib)])
+    assert result.exit_code == 0, result.output
+    assert (tree / "values" / "new2024.csv").read_text() == HEADER + "\n"
+    assert "@article{new2024," in (tree / "sources.bib").read_text()
+    assert HEADER in result.output and "next steps" in result.output
+    findings, _t, _f = check(tree)
+    assert not findings.errors
+    lint = CliRunner().invoke(cli, ["lint", "--check", str(tree)])
+    assert lint.exit_code == 0, lint.output  # the entry went in its sorted place
+
+
+def test_add_reads_a_pasted_entry(tree):
+    result = CliRunner().invoke(cli, ["add", "new2024", "--data", str(tree), "--bibtex", "-"], input=GOOD_BIB)
+    assert result.exit_code == 0, result.output
+    assert (tree / "values" / "new2024.csv").exists()
+
+
+@pytest.mark.parametrize("key, bibtex, message", [
+    ("testa2000", GOOD_BIB.replace("new2024", "testa2000"), "already exists"),
+    ("new2024", "@article{new2024, title = {Unclosed", "malformed"),
+    ("other2024", GOOD_BIB, "key is 'new2024' but the source is 'other2024'"),
+    ("new2024", "@article{new2024, journal = {J}, year = 2024}", "has no title"),
+    ("new2024", GOOD_BIB + "\n" + GOOD_BIB.replace("new2024", "two2024"), "exactly one BibTeX entry"),
+    ("New-2024", GOOD_BIB, "must be lowercase"),
+])
+def test_add_refuses_and_writes_nothing(tree, key, bibtex, message):
+    before = snapshot(tree)
+    result = CliRunner().invoke(cli, ["add", key, "--data", str(tree), "--bibtex", "-"], input=bibtex)
+    assert result.exit_code != 0
+    assert message in str(result.exception)
+    assert snapshot(tree) == before
+
+
+def test_add_refuses_a_key_only_in_sources_bib(tree):
+    (tree / "values" / "testc2002.csv").unlink()  # the entry stays in sources.bib
+    before = snapshot(tree)
+    result = CliRunner().invoke(cli, ["add", "testc2002", "--data", str(tree), "--bibtex", "-"],
+                                input=GOOD_BIB.replace("new2024", "testc2002"))
+    assert "already exists in sources.bib" in str(result.exception)
+    assert snapshot(tree) == before
+
+
+def test_add_without_bibtex_refuses(tree):
+    before = snapshot(tree)
+    result = CliRunner().invoke(cli, ["add", "new2024", "--data", str(tree)])
+    assert result.exit_code != 0 and "--bibtex" in str(result.exception)
+    assert snapshot(tree) == before
+
+
+# --- plausibility warnings ---------------------------------------------------------------------------
+
+def test_fixture_is_clean(tree):
+    assert warnings_of(tree) == []
+
+
+def test_planted_outlier(tree):
+    line = append(tree, "testc2002", "liver2,dog,adult,,mixed,,liver,tissue_mass,1.5,kg,none,,,,5,,measured,"
+                                     "Table 9,no,,invented for tests: planted outlier")
+    found = [w for w in warnings_of(tree) if "times" in w or "×" in w]
+    assert found == [
+        f"values/testc2002.csv:{line}: value: warning: 1.5 kg (1.5 kg) is 4.69× above the median 0.32 kg of "
+        "3 sources (testa2000, testb2001, testc2002) for dog adult liver tissue_mass; check the number, its unit, "
+        "the compartment, life stage and strain against the source"]
+
+
+def test_two_sources_far_apart_are_both_named(tree):
+    line = append(tree, "testa2000", "co,human,adult,,mixed,,whole_body,cardiac_output,25,L/min,none,,,,3,,"
+                                     "measured,p. 3,no,,invented for tests: planted outlier")
+    found = [w for w in warnings_of(tree) if "cardiac_output" in w]
+    assert len(found) == 1  # the median of three sources is not dragged by the planted row
+    assert found[0].startswith(f"values/testa2000.csv:{line}: value: warning: 25 L/min (1500 L/h) is 4.46× above "
+                               "the median 336 L/h of 3 sources")
+
+
+def test_organ_fractions_above_one(tree):
+    line = append(tree, "testa2000", "heart_f,dog,adult,,mixed,Beagle,heart,tissue_mass_fraction,97,%,none,,,,6,"
+                                     "10 kg,measured,Table 3,no,,invented for tests: planted sum above 1")
+    found = [w for w in warnings_of(tree) if "sum to" in w]
+    assert found == [
+        "values/testa2000.csv:4: value: warning: organ mass fractions of dog (adult) in this source sum to 1.008, "
+        "above 1; check for a part counted with its whole or a % read as 1"]
+    assert line == 9
+
+
+def test_suspicious_unit(tree):
+    line = append(tree, "testb2001", "heart,dog,adult,,male,,heart,tissue_mass,0.08,g,none,,,,8,,measured,"
+                                     "Table 1,no,,invented for tests: planted unit typo")
+    found = [w for w in warnings_of(tree) if ": unit: " in w]
+    assert found == [
+        f"values/testb2001.csv:{line}: unit: warning: 0.08 g (8e-05 kg) is about 0.0004267× the median 0.1875 kg "
+        "of 2 other tissue_mass row(s) of dog in this file, which use 'kg'; is 'g' a typo for 'kg'? "
+        "check the unit in the source"]
+
+
+def test_a_small_organ_in_grams_is_not_a_typo(tree):
+    append(tree, "testb2001", "thyroid,dog,adult,,male,,brain,tissue_mass,80,g,none,,,,8,,measured,"
+                              "Table 1,no,,invented for tests: plausible small organ in g")
+    assert [w for w in warnings_of(tree) if ": unit: " in w] == []
+
+
+def test_check_cli_prints_warnings_and_exits_2(tree):
+    line = append(tree, "testc2002", "liver2,dog,adult,,mixed,,liver,tissue_mass,1.5,kg,none,,,,5,,measured,"
+                                     "Table 9,no,,invented for tests: planted outlier")
+    result = CliRunner().invoke(cli, ["check", str(tree)])
+    assert result.exit_code == 2
+    assert f"values/testc2002.csv:{line}: value: warning: 1.5 kg" in result.output
+
+
+# --- trace -----------------------------------------------------------------------------------------
+
+@pytest.fixture(scope="module")
+def store_path(tmp_path_factory) -> Path:
+    out = tmp_path_factory.mktemp("store") / "bodyplan.sqlite"
+    build(FIXTURE, out)
+    return out
+
+
+def test_trace_lists_every_row_with_provenance(store_path):
+    from bodyplan.api import open_store
+    from bodyplan.api.trace import trace
+
+    result = trace(open_store(store_path), "dog", "gfr")
+    rows = result.rows
+    assert list(rows["source"]) == ["testa2000", "testb2001", "testc2002"]
+    assert list(rows["value"]) == [3.5, 3.2, 4.0]
+    assert rows["value_canonical"].round(6).tolist() == [0.21, 0.192, 0.24]
+    assert list(rows["uncertainty"]) == ["sd", "se", "range"]
+    assert list(rows["locator"]) == ["p. 12", "Fig. 2", "Table 2"]
+    assert list(rows["verified"]) == [False, False, False]
+    assert rows["citation"].str.contains("Invented source").all()
+    assert list(rows["file"] + ":" + rows["line"].astype(str)) == [
+        "values/testa2000.csv:3", "values/testb2001.csv:3", "values/testc2002.csv:3"]
+
+
+def test_trace_cli_table_and_json(store_path):
+    import json
+
+    runner = CliRunner()
+    result = runner.invoke(cli, ["trace", "dog", "tissue_mass", "liver", "--store", str(store_path)])
+    assert result.exit_code == 0, result.output
+    assert "values/testb2001.csv:5" in result.output and "testa2000: Tester (2000)" in result.output
+    assert "research modelling only" in result.output
+    data = json.loads(runner.invoke(cli, ["trace", "dog", "tissue_mass", "liver", "--store", str(store_path),
+                                          "--format", "json"]).output)
+    assert [r["value_canonical"] for r in data["rows"]] == [0.3, 0.32, 0.29]
+    assert "caution" in data
+
+
+def test_trace_unknown_id_is_one_clean_error(store_path):
+    result = CliRunner().invoke(cli, ["trace", "dog", "kidney_mass", "--store", str(store_path)])
+    assert result.exit_code != 0 and "unknown quantity 'kidney_mass'" in str(result.exception)
+
+
+def test_trace_combination_is_the_parameter_sets(store_path):
+    parameters = pytest.importorskip("bodyplan.api.parameters")
+    if not hasattr(parameters, "combine_rows"):
+        pytest.skip("bodyplan.api.parameters.combine_rows is not in this version")
+    from bodyplan.api import open_store
+    from bodyplan.api.trace import trace
+
+    store = open_store(store_path)
+    result = trace(store, "dog", "gfr")
+    [combined] = result.combined
+    rows = store.values(species="dog", life_stage="adult", quantity="gfr")
+    expected = parameters.combine_rows(rows[rows["value_canonical"].notna()])
+    assert combined["value"] == pytest.approx(expected.value)
+    assert combined["method"] == expected.method
