@@ -117,3 +117,147 @@ def fit_power_law(body_mass_kg, values, labels: list[str] | None = None, level: 
         b_ci=(float(fit.slope - t * fit.stderr), float(fit.slope + t * fit.stderr)),
         r2=float(fit.rvalue**2), n=n, residual_sd=residual_sd, labels=labels,
         body_mass_kg=x_raw, values=y_raw, level=level)
+
+
+# ---- from the store to one point per species ------------------------------------------------------
+
+CLASSES = {"mammals": "mammal", "birds": "bird", "fish": "fish", "all": None}
+# Relative forms that become the absolute quantity when multiplied by the subjects' body mass.
+# (Water fractions are left out: turning kg of water into litres would need a density.)
+BODY_MASS_FRACTIONS = {"tissue_mass": "tissue_mass_fraction"}
+
+
+@dataclass
+class AllometryResult:
+    quantity: str
+    compartment: str
+    life_stage: str
+    taxon_class: str
+    unit: str  # canonical unit of the absolute values
+    points: "pd.DataFrame"  # one row per species in the fit
+    skipped: "pd.DataFrame"  # curated rows left out, with the reason
+    fit: AllometricFit
+
+    def predict(self, body_mass_kg: float, level: float = 0.95) -> dict:
+        value, low, high = self.fit.predict(body_mass_kg, level)
+        return {"body_mass_kg": body_mass_kg, "value": value, "low": low, "high": high, "unit": self.unit,
+                "level": level}
+
+    def to_dict(self) -> dict:
+        import json
+
+        return {"quantity": self.quantity, "compartment": self.compartment, "life_stage": self.life_stage,
+                "class": self.taxon_class, "unit": self.unit,
+                "model": f"value in {self.unit} = a · (body mass in kg)^b", "fit": self.fit.to_dict(),
+                "points": json.loads(self.points.to_json(orient="records")),
+                "skipped": json.loads(self.skipped.to_json(orient="records"))}
+
+
+def species_body_mass(store, species: str, life_stage: str) -> tuple[float | None, str]:
+    """A species' typical body mass (kg) at a stage: mean of its body_mass values, else the median
+    of the subjects' body masses on its rows; None when the store has neither."""
+    rows = store.query("SELECT value_canonical FROM curated_values WHERE species_id = ? AND life_stage_id = ? "
+                       "AND quantity_id = 'body_mass' AND value_canonical IS NOT NULL", (species, life_stage))
+    if rows:
+        return float(np.mean([r[0] for r in rows])), f"mean of {len(rows)} body_mass value(s)"
+    rows = store.query("SELECT subject_body_mass_kg FROM curated_values WHERE species_id = ? AND life_stage_id = ? "
+                       "AND subject_body_mass_kg IS NOT NULL", (species, life_stage))
+    if rows:
+        return float(np.median([r[0] for r in rows])), f"median subject body mass of {len(rows)} row(s)"
+    return None, "no body mass stored"
+
+
+def _default_compartment(store, quantity: str) -> str:
+    found = [r[0] for r in store.query("SELECT DISTINCT compartment_id FROM curated_values WHERE quantity_id IN "
+                                       f"(?, ?) ORDER BY 1", (quantity, BODY_MASS_FRACTIONS.get(quantity, quantity)))]
+    if len(found) == 1:
+        return found[0]
+    if "whole_body" in found:
+        return "whole_body"
+    raise AllometryError(f"{quantity} is stored for several compartments ({', '.join(found)}); "
+                         "name one with --compartment")
+
+
+def absolute_rows(store, quantity: str, compartment: str, life_stage: str = "adult",
+                  taxon_class: str = "mammals") -> tuple["pd.DataFrame", "pd.DataFrame"]:
+    """Every curated row of the quantity turned into its absolute canonical form, and the rows left out."""
+    import pandas as pd
+
+    if taxon_class not in CLASSES:
+        raise AllometryError(f"unknown class {taxon_class!r}; use one of {', '.join(CLASSES)}")
+    wanted = [quantity] + ([BODY_MASS_FRACTIONS[quantity]] if quantity in BODY_MASS_FRACTIONS else [])
+    sql = ("SELECT v.species_id AS species, v.quantity_id AS quantity, v.normalisation, v.value_canonical, "
+           "v.unit_canonical, v.subject_body_mass_kg, v.source_id AS source, v.row_id, v.verified, s.taxon_class "
+           "FROM curated_values v JOIN species s ON s.id = v.species_id "
+           f"WHERE v.quantity_id IN ({', '.join('?' for _ in wanted)}) AND v.compartment_id = ? "
+           "AND v.life_stage_id = ? AND v.value_canonical IS NOT NULL")
+    params = [*wanted, compartment, life_stage]
+    if CLASSES[taxon_class]:
+        sql += " AND s.taxon_class = ?"
+        params.append(CLASSES[taxon_class])
+    rows = store.frame(sql + " ORDER BY v.species_id, v.source_id, v.row_id", params)
+    masses = {sp: species_body_mass(store, sp, life_stage) for sp in rows["species"].unique()}
+    kept, skipped = [], []
+    for row in rows.itertuples(index=False):
+        typical, typical_note = masses[row.species]
+        if pd.notna(row.subject_body_mass_kg):
+            mass, mass_from = float(row.subject_body_mass_kg), "subjects' body mass on the row"
+        elif typical is not None:
+            mass, mass_from = typical, f"species' typical body mass ({typical_note})"
+        else:
+            skipped.append({**row._asdict(), "reason": f"no body mass stored for {row.species} ({life_stage})"})
+            continue
+        relative = row.quantity != quantity or row.normalisation == "body_mass"
+        if row.normalisation in ("body_surface", "tissue_mass"):
+            skipped.append({**row._asdict(), "reason": f"per {row.normalisation.replace('_', ' ')}: needs a "
+                            f"{'body surface area' if row.normalisation == 'body_surface' else 'tissue mass'} "
+                            "of the same subjects to become absolute"})
+            continue
+        value = row.value_canonical * mass if relative else row.value_canonical
+        kept.append({**row._asdict(), "absolute": value, "body_mass_kg": mass, "body_mass_from": mass_from,
+                     "converted": f"× {mass:.4g} kg body mass" if relative else ""})
+    columns = list(rows.columns)
+    return (pd.DataFrame(kept, columns=columns + ["absolute", "body_mass_kg", "body_mass_from", "converted"]),
+            pd.DataFrame(skipped, columns=columns + ["reason"]))
+
+
+def species_points(rows: "pd.DataFrame") -> "pd.DataFrame":
+    """One point per species: the mean absolute value and the mean body mass of its rows."""
+    import pandas as pd
+
+    if not len(rows):
+        return pd.DataFrame(columns=["species", "body_mass_kg", "value", "n_rows", "sources", "converted_rows"])
+    grouped = rows.groupby("species", sort=True)
+    return pd.DataFrame({
+        "body_mass_kg": grouped["body_mass_kg"].mean(),
+        "value": grouped["absolute"].mean(),
+        "n_rows": grouped.size(),
+        "sources": grouped["source"].agg(lambda s: "; ".join(dict.fromkeys(s))),
+        "converted_rows": grouped["converted"].agg(lambda s: int((s != "").sum())),
+    }).reset_index()
+
+
+def allometry(store, quantity: str, compartment: str | None = None, life_stage: str = "adult",
+              taxon_class: str = "mammals", level: float = 0.95) -> AllometryResult:
+    """Fit value = a · body_mass^b across the species that have the quantity (one point per species)."""
+    store.require("quantities", quantity, "quantity")
+    store.require("life_stages", life_stage, "life stage")
+    if quantity == "body_mass":
+        raise AllometryError("body_mass is the predictor; choose another quantity")
+    if compartment is None:
+        compartment = _default_compartment(store, quantity)
+    store.require("compartments", compartment, "compartment")
+    rows, skipped = absolute_rows(store, quantity, compartment, life_stage, taxon_class)
+    points = species_points(rows)
+    if len(points) < 3:
+        have = ", ".join(points["species"]) or "none"
+        raise AllometryError(f"{quantity} of {compartment} ({life_stage}, {taxon_class}) with a body mass is "
+                             f"stored for {len(points)} species ({have}); a fit needs at least 3")
+    fit = fit_power_law(points["body_mass_kg"].to_numpy(), points["value"].to_numpy(), list(points["species"]),
+                        level=level)
+    _, low, high = fit.predict(fit.body_mass_kg, level)
+    points["predicted"] = fit.predict(fit.body_mass_kg, level)[0]
+    points["low"], points["high"] = low, high
+    points["outside_interval"] = (points["value"] < low) | (points["value"] > high)
+    unit = store.query("SELECT canonical_unit FROM quantities WHERE id = ?", (quantity,))[0][0]
+    return AllometryResult(quantity, compartment, life_stage, taxon_class, unit, points, skipped, fit)

@@ -101,6 +101,18 @@ class Store:
 
         return parameter_set(self, species, **options)
 
+    def gap_report(self, species=None, *, stage: str = "adult", layout="whole_body"):
+        """Coverage, readiness and most-wanted parameters; see :func:`bodyplan.api.gaps.gap_report`."""
+        from .gaps import gap_report
+
+        return gap_report(self, species, stage=stage, layout=layout)
+
+    def allometry(self, quantity: str, **options):
+        """Cross-species power-law fit; see :func:`bodyplan.api.allometry.allometry`."""
+        from .allometry import allometry
+
+        return allometry(self, quantity, **options)
+
 
 def open_store(path: str | Path | None = None) -> Store:
     return Store(locate_store(path))

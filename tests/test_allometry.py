@@ -2,10 +2,17 @@
 
 from __future__ import annotations
 
+import json
+import shutil
+from pathlib import Path
+
 import numpy as np
 import pytest
 
-from bodyplan.api.allometry import AllometryError, fit_power_law
+import bodyplan
+from bodyplan.api.allometry import AllometryError, allometry, fit_power_law
+from bodyplan.api.locate import bundled_data_dir
+from bodyplan.ingest import build
 
 # Points invented for tests: body masses (kg) and values with scatter around a power law.
 MASS = np.array([0.025, 0.3, 2.5, 12.0, 70.0, 450.0, 600.0])
@@ -73,3 +80,177 @@ def test_fit_refuses_what_a_power_law_cannot_take():
         fit_power_law([1.0, 2.0, 3.0], [1.0, 0.0, 2.0], ["a", "b", "c"])
     with pytest.raises(AllometryError, match="same body mass"):
         fit_power_law([2.0, 2.0, 2.0], [1.0, 1.5, 2.0], ["a", "b", "c"])
+
+
+# ---- from stored rows to one point per species (invented tree: tests/data/allometry_toy) ------------
+
+TOY = Path(__file__).parent / "data" / "allometry_toy"
+
+
+@pytest.fixture(scope="module")
+def toy_store(tmp_path_factory):
+    root = tmp_path_factory.mktemp("allometry_toy")
+    shutil.copytree(bundled_data_dir() / "vocab", root / "vocab")
+    shutil.copytree(TOY / "values", root / "values")
+    shutil.copy(TOY / "sources.bib", root / "sources.bib")
+    build(root, root / "toy.sqlite")
+    return bodyplan.open_store(root / "toy.sqlite")
+
+
+def test_rows_become_absolute_values_one_point_per_species(toy_store):
+    result = allometry(toy_store, "cardiac_output")
+    pts = result.points.set_index("species")
+    assert result.compartment == "whole_body" and result.unit == "L/h"
+    assert list(pts.index) == ["dog", "human", "mouse", "rat"]  # cattle lacks a body mass; chicken is a bird
+    # dog: two absolute rows (150 L/h at 12 kg, 2 L/min = 120 L/h at 10 kg) → their means
+    assert pts.loc["dog", "value"] == pytest.approx(135.0) and pts.loc["dog", "body_mass_kg"] == pytest.approx(11.0)
+    # rat: 25 L/h/kg × the row's 0.3 kg
+    assert pts.loc["rat", "value"] == pytest.approx(7.5) and pts.loc["rat", "converted_rows"] == 1
+    # mouse: 15 mL/min = 0.9 L/h, at the species' stored body mass (25 g)
+    assert pts.loc["mouse", "value"] == pytest.approx(0.9) and pts.loc["mouse", "body_mass_kg"] == 0.025
+    assert pts.loc["human", "value"] == pytest.approx(336.0)
+    reasons = dict(zip(result.skipped["row_id"], result.skipped["reason"]))
+    assert "no body mass stored for cattle" in reasons["cattle_co"]
+    assert "body surface" in reasons["human_ci"]
+    # the fit runs on exactly these points
+    direct = fit_power_law(pts["body_mass_kg"].to_numpy(), pts["value"].to_numpy(), list(pts.index))
+    assert result.fit.b == pytest.approx(direct.b) and result.fit.a_ci == pytest.approx(direct.a_ci)
+    assert list(result.points["outside_interval"]) == [False] * 4
+
+
+def test_fractions_of_body_mass_join_organ_masses(toy_store):
+    pts = allometry(toy_store, "tissue_mass", "liver").points.set_index("species")
+    assert pts.loc["mouse", "value"] == pytest.approx(0.05 * 0.025)  # 5 % of 25 g
+    assert pts.loc["rat", "value"] == pytest.approx(0.010) and pts.loc["human", "value"] == pytest.approx(1.8)
+
+
+def test_class_stage_and_refusals(toy_store):
+    assert "chicken" in set(allometry(toy_store, "cardiac_output", taxon_class="all").points["species"])
+    with pytest.raises(AllometryError, match="stored for 1 species"):
+        allometry(toy_store, "cardiac_output", life_stage="juvenile")
+    with pytest.raises(AllometryError, match="stored for 1 species"):
+        allometry(toy_store, "cardiac_output", taxon_class="birds")
+    with pytest.raises(AllometryError, match="predictor"):
+        allometry(toy_store, "body_mass")
+    with pytest.raises(AllometryError, match="unknown class"):
+        allometry(toy_store, "cardiac_output", taxon_class="reptiles")
+    from bodyplan.api import UnknownIdError
+
+    with pytest.raises(UnknownIdError):
+        allometry(toy_store, "heart_rate")
+
+
+def test_cli_allometry_json_prediction_and_plot(toy_store, tmp_path):
+    from click.testing import CliRunner
+
+    from bodyplan.cli import cli
+
+    png = tmp_path / "co.png"
+    result = CliRunner().invoke(cli, ["allometry", "cardiac_output", "--format", "json", "--predict", "dog",
+                                      "--body-weight", "12 kg", "--out", str(png), "--store", str(toy_store.path)])
+    assert result.exit_code == 0, result.output
+    data = json.loads(result.output[result.output.index("{"):])
+    fit = toy_store.allometry("cardiac_output").fit
+    value, low, high = fit.predict(12.0)
+    assert data["prediction"]["value"] == pytest.approx(value)
+    assert (data["prediction"]["low"], data["prediction"]["high"]) == pytest.approx((low, high))
+    assert data["fit"]["n"] == 4 and "research modelling" in data["caution"]
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and png.stat().st_size > 20_000
+    table = CliRunner().invoke(cli, ["allometry", "tissue_mass", "--compartment", "liver", "--predict", "mouse",
+                                     "--store", str(toy_store.path)])
+    assert table.exit_code == 0, table.output
+    assert "0.025 kg" in table.output and "one of the fitted points" in table.output
+    missing = CliRunner().invoke(cli, ["allometry", "cardiac_output", "--predict", "cattle",
+                                       "--store", str(toy_store.path)])
+    assert missing.exit_code != 0
+
+
+def test_plot_names_every_species(toy_store):
+    from bodyplan.report.allometry_plot import allometry_figure
+
+    result = allometry(toy_store, "cardiac_output")
+    fig = allometry_figure(result, result.predict(12.0), "dog")
+    texts = {t.get_text() for t in fig.axes[0].texts}
+    assert {"dog", "human", "mouse", "rat"} <= texts
+    assert fig.axes[0].get_xscale() == "log" and fig.axes[0].get_yscale() == "log"
+
+
+# ---- the bundled curated data against published exponents -------------------------------------------
+# These tests depend on the bundled data (conftest's bundled_store). Each skips, saying why, only
+# while fewer than MIN_SPECIES mammal species carry the quantity with a body mass.
+
+MIN_SPECIES = 5
+
+
+def _fit_or_skip(store, quantity, compartment=None):
+    try:
+        result = allometry(store, quantity, compartment, taxon_class="mammals")
+    except AllometryError as exc:
+        pytest.skip(f"bundled data: {exc}")
+    if result.fit.n < MIN_SPECIES:
+        left_out = sorted(set(result.skipped["species"]) - set(result.points["species"]))
+        pytest.skip(f"bundled data: {quantity} of {result.compartment} has a body mass for only {result.fit.n} "
+                    f"mammal species ({', '.join(result.points['species'])}); needs {MIN_SPECIES}. "
+                    f"Rows left out for: {', '.join(left_out) or 'none'}")
+    return result
+
+
+@pytest.fixture(scope="module")
+def real_store(bundled_store):
+    return bodyplan.open_store(bundled_store)
+
+
+# Cardiac output. Stahl 1967 (J Appl Physiol 22:453) fitted cardiac output itself: exponent 0.81
+# (from memory); the test asks that 0.81 lies in the fit's 95 % CI. Lindstedt & Schaeffer 2002
+# (Lab Anim 36:1) give "about 0.75" for volume rates in general (from memory), not an estimate for
+# cardiac output alone; the test reads "about" as 0.75 ± 0.05 and asks that this range overlaps the CI.
+# When written (1243 rows): 7 mammal species, b = 0.810 [0.751, 0.869], R² 0.996: 0.75 itself sits
+# just below the CI, 0.81 in its middle.
+def test_cardiac_output_exponent_agrees_with_stahl_1967(real_store):
+    """Depends on the bundled data."""
+    fit = _fit_or_skip(real_store, "cardiac_output").fit
+    assert fit.b_ci[0] <= 0.81 <= fit.b_ci[1], (
+        f"Stahl 1967 J Appl Physiol 22:453: 0.81 outside the 95 % CI {fit.b_ci} (b = {fit.b:.3f}, {fit.labels})")
+
+
+def test_cardiac_output_exponent_near_lindstedt_schaeffer_2002(real_store):
+    """Depends on the bundled data."""
+    fit = _fit_or_skip(real_store, "cardiac_output").fit
+    low, high = 0.75 - 0.05, 0.75 + 0.05
+    assert fit.b_ci[0] <= high and low <= fit.b_ci[1], (
+        f"Lindstedt & Schaeffer 2002 Lab Anim 36:1: about 0.75 does not meet the 95 % CI {fit.b_ci}")
+
+
+# Organ mass against body mass (depends on the bundled data). Published exponents, all from memory:
+# Lindstedt & Schaeffer 2002 (Lab Anim 36:1) list organ masses scaling close to M^1 (heart, lungs,
+# blood volume), the liver, kidneys and brain below 1 (brain about 0.7, kidneys about 0.85);
+# Boxenbaum's liver equation has an exponent of 0.85.
+# What the data supported when written (1243 rows, mammals, adults):
+#   heart 6 species b = 1.00 [0.86, 1.13]; lung 5, 1.05 [0.92, 1.18]; spleen 5, 0.97 [0.88, 1.05];
+#   blood volume 8, 1.00 [0.95, 1.05]: all near 1, as published.
+#   liver 7 species b = 0.86 [0.81, 0.92] and kidney 5, 0.80 [0.69, 0.91]: clearly below 1.
+#   brain 6 species b = 0.93 [0.54, 1.32], R² 0.92: below 1 only as a point estimate; with six
+#   species (the human brain large for its body) the CI still includes both 0.7 and 1.
+@pytest.mark.parametrize("quantity, compartment", [("tissue_mass", "heart"), ("tissue_mass", "lung"),
+                                                   ("tissue_mass", "spleen"), ("blood_volume", "blood")])
+def test_organ_masses_scale_near_one(real_store, quantity, compartment):
+    fit = _fit_or_skip(real_store, quantity, compartment).fit
+    assert fit.b_ci[0] <= 1.0 <= fit.b_ci[1], (compartment, fit.b, fit.b_ci, fit.labels)
+    assert 0.8 < fit.b < 1.2
+
+
+@pytest.mark.parametrize("compartment, published", [("liver", 0.85), ("kidney", 0.85)])
+def test_liver_and_kidney_mass_exponents_below_one(real_store, compartment, published):
+    """Boxenbaum's liver exponent and Lindstedt & Schaeffer's kidney exponent (0.85 both, from memory)
+    lie in the CI, and the whole CI lies below 1."""
+    fit = _fit_or_skip(real_store, "tissue_mass", compartment).fit
+    assert fit.b_ci[0] <= published <= fit.b_ci[1], (fit.b, fit.b_ci, fit.labels)
+    assert fit.b_ci[1] < 1.0
+
+
+def test_brain_mass_exponent(real_store):
+    """Brain about M^0.7 (Lindstedt & Schaeffer 2002, from memory): 0.7 lies in the CI and the
+    estimate is below 1 (the CI is still too wide to exclude 1; see the comment above)."""
+    fit = _fit_or_skip(real_store, "tissue_mass", "brain").fit
+    assert fit.b_ci[0] <= 0.7 <= fit.b_ci[1], (fit.b, fit.b_ci, fit.labels)
+    assert fit.b < 1.0

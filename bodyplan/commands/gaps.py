@@ -1,0 +1,142 @@
+"""bodyplan gaps and bodyplan allometry: what is missing, and what the other species predict."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import click
+
+from ..output import emit, format_option, store_option
+
+
+def _write_report(report, out: str, store) -> str:
+    suffix = Path(out).suffix.lower()
+    if suffix == ".png":
+        from ..report.heatmap import write_heatmap
+
+        write_heatmap(report, out)
+    elif suffix in (".html", ".htm"):
+        from ..report.page import write_gap_report_html
+
+        write_gap_report_html(report, out, store.info())
+    else:
+        raise click.BadParameter(f"{out}: write a .html report or a .png heatmap", param_hint="--out")
+    return out
+
+
+@click.command("gaps")
+@click.option("--species", "species", multiple=True, help="Species id (repeatable; default: every species).")
+@click.option("--stage", default="adult", show_default=True,
+              help="Life stage, or 'all' for every stage with data (plus adult for every species).")
+@click.option("--layout", default="whole_body", show_default=True, help="Layout name (whole_body, rich_slow) or a .toml file.")
+@format_option()
+@click.option("--out", type=click.Path(dir_okay=False), default=None,
+              help="Also write the report: FILE.html (self-contained) or FILE.png (the heatmap).")
+@store_option
+def gaps_cmd(species, stage, layout, fmt, out, store_path):
+    """Coverage of each species × parameter, readiness per species, and what to curate next."""
+    from ..api import open_store
+
+    store = open_store(store_path)
+    report = store.gap_report(list(species) or None, stage=stage, layout=layout)
+    if out:
+        click.echo(f"wrote {_write_report(report, out, store)}", err=True)
+    if fmt == "json":
+        emit(report.to_dict(), fmt)
+    elif fmt == "csv":
+        emit(report.coverage, fmt)
+    else:
+        ranked = report.under_studied.assign(readiness=lambda f: (f["readiness"] * 100).round(0).astype(int))
+        emit(ranked[["rank", "species", "life_stage", "readiness", "available", "total", "covered_parameters"]]
+             .rename(columns={"readiness": "readiness %", "covered_parameters": "parameters with data"}),
+             fmt, title=f"Readiness ({report.layout} layout), least ready first")
+        emit(report.most_wanted[["parameter", "species_made_ready", "gaps_closed_alone", "species_needing"]]
+             .head(15), fmt, title="Most wanted: curating this closes the most gaps")
+        counts = report.coverage.pivot_table(index=["species", "life_stage"], columns="state", values="parameter",
+                                             aggfunc="count", fill_value=0).reset_index()
+        emit(counts, fmt, title="Coverage cells per state (full matrix: --format csv or json, or --out FILE.html)")
+
+
+@click.command("allometry")
+@click.argument("quantity")
+@click.option("--compartment", default=None, help="Compartment id (default: the one the quantity is stored on).")
+@click.option("--stage", default="adult", show_default=True, help="Life stage.")
+@click.option("--class", "taxon_class", type=click.Choice(["mammals", "birds", "fish", "all"]), default="mammals",
+              show_default=True, help="Which species to fit over.")
+@format_option(choices=["table", "json"])
+@click.option("--out", type=click.Path(dir_okay=False), default=None, help="Write the log–log plot to FILE.png.")
+@click.option("--predict", "predict_species", default=None, help="Predict the quantity for this species.")
+@click.option("--body-weight", default=None, help='Body weight for --predict, e.g. "12 kg" (default: the '
+              "species' stored body mass).")
+@store_option
+def allometry_cmd(quantity, compartment, stage, taxon_class, fmt, out, predict_species, body_weight, store_path):
+    """Fit QUANTITY = a · (body mass)^b across species, one point per species, with 95 % intervals."""
+    from .. import CAUTION
+    from ..api import open_store
+
+    store = open_store(store_path)
+    result = store.allometry(quantity, compartment=compartment, life_stage=stage, taxon_class=taxon_class)
+    prediction = None
+    if predict_species or body_weight:
+        prediction = _prediction(store, result, predict_species, body_weight, stage)
+    if out:
+        if Path(out).suffix.lower() != ".png":
+            raise click.BadParameter(f"{out}: the plot is written as .png", param_hint="--out")
+        from ..report.allometry_plot import write_allometry_png
+
+        write_allometry_png(result, out, prediction, predict_species)
+        click.echo(f"wrote {out}", err=True)
+    if fmt == "json":
+        data = result.to_dict()
+        if prediction:
+            data["prediction"] = prediction
+            data["caution"] = CAUTION
+        emit(data, fmt)
+        return
+    fit = result.fit
+    pts = result.points[["species", "body_mass_kg", "value", "predicted", "low", "high", "outside_interval",
+                         "n_rows", "converted_rows", "sources"]].copy()
+    for col in ("body_mass_kg", "value", "predicted", "low", "high"):
+        pts[col] = pts[col].map(lambda x: f"{x:.4g}")
+    emit(pts.rename(columns={"value": f"value ({result.unit})", "low": "PI low", "high": "PI high"}), fmt,
+         title=f"{quantity} of {result.compartment}, {stage}, {taxon_class}: one point per species")
+    summary = {"model": f"{quantity} in {result.unit} = a · (body mass in kg)^b",
+               "a": f"{fit.a:.4g} (95 % CI {fit.a_ci[0]:.4g}–{fit.a_ci[1]:.4g})",
+               "b": f"{fit.b:.4f} (95 % CI {fit.b_ci[0]:.4f}–{fit.b_ci[1]:.4f})",
+               "R²": f"{fit.r2:.4f}", "n species": fit.n, "residual sd (log10)": f"{fit.residual_sd:.4f}",
+               "outside the 95 % prediction interval": ", ".join(fit.outliers()) or "none",
+               "rows left out": f"{len(result.skipped)} (see --format json)"}
+    if prediction:
+        who = predict_species or "a new species"
+        summary[f"predicted for {who} at {prediction['body_mass_kg']:.4g} kg"] = (
+            f"{prediction['value']:.4g} {result.unit} (95 % prediction interval "
+            f"{prediction['low']:.4g}–{prediction['high']:.4g})")
+        if prediction.get("note"):
+            summary["note"] = prediction["note"]
+        summary["caution"] = CAUTION
+    emit(summary, fmt, title="Fit")
+
+
+def _prediction(store, result, species, body_weight, stage) -> dict:
+    from ..api.allometry import AllometryError, species_body_mass
+    from ..units import to_quantity
+
+    if species:
+        store.require("species", species, "species")
+    if body_weight:
+        try:
+            kg = float(to_quantity(body_weight, "kg").to("kg").magnitude)
+        except Exception as exc:
+            raise AllometryError(f"body weight {body_weight!r} is not a mass: {exc}") from None
+        basis = "given"
+    else:
+        kg, basis = species_body_mass(store, species, stage)
+        if kg is None:
+            raise AllometryError(f"no body mass stored for {species} ({stage}); give --body-weight")
+    if kg <= 0:
+        raise AllometryError(f"body weight must be positive, got {body_weight!r}")
+    out = result.predict(kg)
+    out.update(species=species, body_mass_from=basis)
+    if species in set(result.points["species"]):
+        out["note"] = f"{species} is one of the fitted points; its own data are in the table"
+    return out

@@ -1,0 +1,92 @@
+"""The gap report as one self-contained HTML file: heatmap (PNG as base64), ranked lists, sources per cell."""
+
+from __future__ import annotations
+
+import base64
+from html import escape
+from pathlib import Path
+
+import pandas as pd
+
+from ..api.gaps import STATE_HELP, GapReport
+
+STYLE = """
+body { font-family: system-ui, sans-serif; margin: 2em; max-width: 80em; color: #111; }
+table { border-collapse: collapse; margin: 0.5em 0 1.5em; font-size: 0.9em; }
+th, td { border: 1px solid #bbb; padding: 0.2em 0.5em; text-align: left; vertical-align: top; }
+th { background: #eee; }
+td.num { text-align: right; font-variant-numeric: tabular-nums; }
+img { max-width: 100%; height: auto; border: 1px solid #ddd; }
+.note { color: #444; font-size: 0.9em; }
+"""
+
+
+def _table(frame: pd.DataFrame, columns: dict[str, str], numeric=(), table_id: str = "") -> str:
+    head = "".join(f"<th>{escape(label)}</th>" for label in columns.values())
+    body = []
+    for row in frame.itertuples(index=False):
+        cells = []
+        for col in columns:
+            value = getattr(row, col)
+            text = "" if value is None or (isinstance(value, float) and pd.isna(value)) else str(value)
+            cls = ' class="num"' if col in numeric else ""
+            cells.append(f"<td{cls}>{escape(text)}</td>")
+        body.append("<tr>" + "".join(cells) + "</tr>")
+    ident = f' id="{table_id}"' if table_id else ""
+    return f"<table{ident}><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
+
+
+def gap_report_html(report: GapReport, png: bytes | None = None, store_info: dict | None = None) -> str:
+    from .heatmap import write_heatmap
+
+    png = write_heatmap(report) if png is None else png
+    image = base64.b64encode(png).decode("ascii")
+    ranked = report.under_studied.assign(readiness_pct=lambda f: (f["readiness"] * 100).round(0).astype(int))
+    stage = "all stages" if report.stage == "all" else f"life stage {report.stage}"
+    covered = report.coverage[report.coverage["state"] != "absent"].sort_values(["species", "life_stage",
+                                                                                    "parameter"])
+    states = pd.DataFrame([{"state": k, "meaning": v} for k, v in STATE_HELP.items()])
+    info = store_info or {}
+    parts = [
+        "<!DOCTYPE html>",
+        '<html lang="en"><head><meta charset="utf-8">',
+        f"<title>bodyplan gap report: {escape(report.layout)}, {escape(stage)}</title>",
+        f"<style>{STYLE}</style></head><body>",
+        f"<h1>Gap report: layout {escape(report.layout)}, {escape(stage)}</h1>",
+        f'<p class="note">{len(ranked)} species × stage rows, {len(report.parameters)} parameters. '
+        f"Store {escape(str(info.get('store', '')))}, content hash {escape(str(info.get('content_hash', ''))[:16])}."
+        " Readiness is the share of the layout's parameter set (body weight, cardiac output, volume and "
+        "blood flow per compartment; rest_of_body left out) that the store supplies without filling.</p>",
+        "<h2>Coverage</h2>",
+        f'<img id="heatmap" alt="coverage heatmap: species by parameter, coloured by state" '
+        f'src="data:image/png;base64,{image}">',
+        _table(states, {"state": "state", "meaning": "meaning"}, table_id="states"),
+        "<h2>Under-studied species (least ready first)</h2>",
+        _table(ranked, {"rank": "rank", "species": "species", "life_stage": "stage",
+                        "readiness_pct": "readiness %", "available": "available", "total": "of",
+                        "covered_parameters": "parameters with any data", "gaps": "gaps"},
+               numeric={"rank", "readiness_pct", "available", "total", "covered_parameters"},
+               table_id="under-studied"),
+        "<h2>Most wanted</h2>",
+        '<p class="note">What each gap waits on: its own parameter when nothing is stored for it, body mass '
+        "when the body weight is a gap, cardiac output for flows when it is a gap. <em>made ready</em>: species "
+        "whose every gap waits on this parameter alone; <em>gaps closed alone</em>: gaps that wait on it "
+        "alone; <em>species needing</em>: species with a gap that waits on it.</p>",
+        _table(report.most_wanted, {"parameter": "parameter", "species_made_ready": "made ready",
+                                    "gaps_closed_alone": "gaps closed alone",
+                                    "species_needing": "species needing", "species": "species"},
+               numeric={"species_made_ready", "gaps_closed_alone", "species_needing"}, table_id="most-wanted"),
+        "<h2>Sources behind each covered cell</h2>",
+        _table(covered, {"species": "species", "life_stage": "stage", "parameter": "parameter", "state": "state",
+                         "n_values": "values", "n_absolute": "absolute", "n_verified": "verified",
+                         "n_with_uncertainty": "with uncertainty", "sources": "sources"},
+               numeric={"n_values", "n_absolute", "n_verified", "n_with_uncertainty"}, table_id="cells"),
+        "<h2>Sources</h2>",
+        _table(report.sources, {"id": "id", "citation": "citation", "doi": "DOI"}, table_id="sources"),
+        "</body></html>",
+    ]
+    return "\n".join(parts) + "\n"
+
+
+def write_gap_report_html(report: GapReport, path: str | Path, store_info: dict | None = None) -> None:
+    Path(path).write_text(gap_report_html(report, store_info=store_info), encoding="utf-8")

@@ -1,0 +1,269 @@
+"""Gap reports: coverage counts against SQL, readiness, most wanted, and the rendered PNG and HTML.
+
+Runs on the bundled curated data (copied into tmp_path with one species added that has no rows:
+its vocabulary line says "invented for tests").
+"""
+
+from __future__ import annotations
+
+import base64
+import io
+import json
+import shutil
+from html.parser import HTMLParser
+
+import pandas as pd
+import pytest
+
+import bodyplan
+from bodyplan.api.gaps import STATES, gap_report, layout_parameters, needed_for
+from bodyplan.api.layouts import Layout, load_layout
+from bodyplan.api.locate import bundled_data_dir
+from bodyplan.ingest import build
+
+EMPTY = "test_species_without_data"
+
+
+@pytest.fixture(scope="module")
+def store(tmp_path_factory):
+    root = tmp_path_factory.mktemp("gaps") / "curated"
+    shutil.copytree(bundled_data_dir(), root, ignore=shutil.ignore_patterns("__pycache__", "*.py"))
+    with open(root / "vocab" / "species.csv", "a", encoding="utf-8", newline="") as fh:
+        fh.write(f"{EMPTY},Nullus testorum,test species,1,mammal,,invented for tests: a species with no rows\n")
+    build(root, root.parent / "store.sqlite")
+    return bodyplan.open_store(root.parent / "store.sqlite")
+
+
+@pytest.fixture(scope="module")
+def report(store):
+    return gap_report(store)
+
+
+def sql_count(store, species, stage, compartments, quantities):
+    marks = lambda xs: ", ".join("?" for _ in xs)  # noqa: E731
+    row = store.conn.execute(
+        "SELECT count(*), count(DISTINCT source_id) FROM curated_values WHERE species_id = ? AND life_stage_id = ? "
+        f"AND compartment_id IN ({marks(compartments)}) AND quantity_id IN ({marks(quantities)}) "
+        "AND value IS NOT NULL", (species, stage, *compartments, *quantities)).fetchone()
+    return tuple(row)
+
+
+def test_every_species_is_in_the_report_and_empty_ones_score_zero(store, report):
+    species = store.ids("species")
+    assert sorted(report.readiness["species"]) == sorted(species)
+    assert set(report.coverage["species"]) == set(species)
+    empty = report.readiness.set_index("species").loc[EMPTY]
+    assert empty["readiness"] == 0 and empty["available"] == 0 and empty["covered_parameters"] == 0
+    cells = report.coverage[report.coverage["species"] == EMPTY]
+    assert len(cells) == len(report.parameters) and set(cells["state"]) == {"absent"}
+    # the under-studied ranking starts with species that have nothing
+    assert report.under_studied.iloc[0]["readiness"] == 0
+
+
+def test_coverage_counts_match_sql(store, report):
+    """Each cell's value and source counts equal a direct count over curated_values."""
+    params = {p.id: p for p in report.parameters}
+    for cell in report.coverage.itertuples(index=False):
+        p = params[cell.parameter]
+        n_values, n_sources = sql_count(store, cell.species, cell.life_stage, p.compartments, p.quantities)
+        assert (cell.n_values, cell.n_sources) == (n_values, n_sources), (cell.species, cell.parameter)
+    # the same for a few cells written out by hand, independent of the report's own mapping
+    for species in ("human", "rat", "dog"):
+        liver = report.coverage.query("species == @species and parameter == 'liver.volume'").iloc[0]
+        assert liver["n_values"] == sql_count(store, species, "adult", ["liver"],
+                                              ["tissue_mass", "tissue_mass_fraction", "tissue_volume"])[0]
+        co = report.coverage.query("species == @species and parameter == 'cardiac_output'").iloc[0]
+        assert co["n_values"] == sql_count(store, species, "adult", ["whole_body"], ["cardiac_output"])[0]
+    assert report.coverage["n_values"].sum() > 0
+
+
+def test_cell_states_follow_their_definitions(store, report):
+    seen = set(report.coverage["state"])
+    assert seen <= set(STATES)
+    assert report.coverage["level"].tolist() == [STATES.index(s) for s in report.coverage["state"]]
+    for cell in report.coverage.itertuples(index=False):
+        if cell.state == "absent":
+            assert cell.n_values == 0
+        elif cell.state == "fraction only":
+            assert cell.n_values > 0 and cell.n_absolute == 0
+        else:
+            assert cell.n_absolute > 0
+        if cell.state == "verified":
+            assert cell.n_verified > 0 and cell.n_with_uncertainty > 0
+        if cell.state == "several sources":
+            assert cell.n_sources >= 2
+    # the human adult set is the best curated one: several sources behind its liver volume
+    assert report.coverage.query("species == 'human' and parameter == 'liver.volume'")["state"].item() == \
+        "several sources"
+
+
+def test_readiness_is_the_non_gap_share_of_the_parameter_set(store, report):
+    for species in ("human", "rat", EMPTY):
+        table = store.parameter_set(species, fill="none").table
+        table = table[(table["compartment"] != "rest_of_body") & (table["fill"] != "not_applicable")]
+        expected = (table["fill"] != "gap").mean()
+        got = report.readiness.set_index("species").loc[species, "readiness"]
+        assert got == pytest.approx(expected, abs=1e-4)
+    ranked = report.under_studied["readiness"].tolist()
+    assert ranked == sorted(ranked)
+
+
+def test_other_layouts_and_stages(store):
+    small = gap_report(store, ["human", "rat"], stage="all", layout="rich_slow")
+    assert {"richly_perfused.volume", "slowly_perfused.blood_flow"} <= {p.id for p in small.parameters}
+    assert "blood.blood_flow" not in {p.id for p in small.parameters}  # blood carries the cardiac output
+    stages = set(zip(small.readiness["species"], small.readiness["life_stage"]))
+    assert ("human", "adult") in stages and ("rat", "adult") in stages
+    in_store = {tuple(r) for r in store.query("SELECT DISTINCT species_id, life_stage_id FROM curated_values "
+                                              "WHERE species_id IN ('human', 'rat')")}
+    assert in_store <= stages
+
+
+def test_needed_for_traces_gaps_to_what_would_close_them():
+    """A hand-made parameter-set table (invented for tests): body weight and cardiac output are gaps."""
+    layout = Layout("t", "", {"liver": ["liver"], "gut": ["gut"], "lung": ["lung"], "blood": ["blood"]})
+    params = layout_parameters(layout)
+    table = pd.DataFrame([
+        ("whole_body", "body_weight", "gap"), ("whole_body", "cardiac_output", "gap"),
+        ("liver", "volume", "gap"), ("liver", "blood_flow", "gap"), ("gut", "volume", "scaled"),
+        ("gut", "blood_flow", "gap"), ("lung", "volume", "gap"), ("lung", "blood_flow", "gap"),
+        ("blood", "volume", "gap"), ("blood", "blood_flow", "not_applicable")],
+        columns=["compartment", "parameter", "fill"])
+    cover = {"liver.volume": "fraction only", "lung.volume": "absent", "blood.volume": "fraction only",
+             "gut.blood_flow": "fraction only"}
+    needs = needed_for(table, cover, layout, params)
+    assert needs[("whole_body", "body_weight")] == {"body_mass"}
+    assert needs[("liver", "volume")] == {"body_mass"}  # a fraction is stored; the body weight is missing
+    assert needs[("lung", "volume")] == {"lung.volume", "body_mass"}
+    assert needs[("lung", "blood_flow")] == {"cardiac_output", "body_mass"}  # lung flow is the cardiac output
+    assert needs[("liver", "blood_flow")] == {"liver.blood_flow", "gut.blood_flow", "body_mass", "cardiac_output"}
+    assert ("blood", "blood_flow") not in needs and ("gut", "volume") not in needs
+
+
+def test_most_wanted_counts_are_consistent(report):
+    mw = report.most_wanted
+    assert len(mw) > 0
+    n_keys = len(report.readiness)
+    assert (mw["species_needing"] <= n_keys).all()
+    assert (mw["species_made_ready"] <= mw["species_needing"]).all()
+    assert mw["species_needing"].tolist() == [len(s.split(", ")) for s in mw["species"]]
+    ranked = list(zip(mw["species_made_ready"], mw["gaps_closed_alone"], mw["species_needing"]))
+    assert ranked == sorted(ranked, reverse=True)
+    # a species with no rows at all waits on body mass among others
+    assert EMPTY in mw.set_index("parameter").loc["body_mass", "species"]
+
+
+def test_heatmap_png_is_written_and_names_every_species(report, tmp_path):
+    import matplotlib.image as mpimg
+
+    from bodyplan.report.heatmap import heatmap_figure, write_heatmap
+
+    path = tmp_path / "gaps.png"
+    data = write_heatmap(report, path)
+    assert path.read_bytes() == data and data[:8] == b"\x89PNG\r\n\x1a\n"
+    height, width = mpimg.imread(path).shape[:2]
+    # at least 0.25 inch per species row and per parameter column at 150 dpi: legible when printed
+    assert height >= 0.25 * 150 * len(report.readiness) and width >= 0.4 * 150 * len(report.parameters)
+    fig = heatmap_figure(report)
+    ax = fig.axes[0]
+    row_text = " ".join(t.get_text() for t in ax.get_yticklabels())
+    for species in report.readiness["species"]:
+        assert species in row_text
+    assert [t.get_text() for t in ax.get_xticklabels()] == [p.label for p in report.parameters]
+    legend = [t.get_text() for t in fig.legends[0].get_texts()]
+    assert legend == STATES
+
+
+class _Collector(HTMLParser):
+    def __init__(self):
+        super().__init__()
+        self.tables: dict[str, list[list[str]]] = {}
+        self.images: list[str] = []
+        self._table = None
+        self._row = None
+        self._cell = None
+
+    def handle_starttag(self, tag, attrs):
+        attrs = dict(attrs)
+        if tag == "table":
+            self._table = self.tables.setdefault(attrs.get("id", f"t{len(self.tables)}"), [])
+        elif tag == "tr" and self._table is not None:
+            self._row = []
+        elif tag in ("td", "th") and self._row is not None:
+            self._cell = ""
+        elif tag == "img":
+            self.images.append(attrs.get("src", ""))
+
+    def handle_endtag(self, tag):
+        if tag in ("td", "th") and self._cell is not None:
+            self._row.append(self._cell)
+            self._cell = None
+        elif tag == "tr" and self._row is not None:
+            self._table.append(self._row)
+            self._row = None
+        elif tag == "table":
+            self._table = None
+
+    def handle_data(self, data):
+        if self._cell is not None:
+            self._cell += data
+
+
+def test_html_report_is_self_contained_and_complete(store, report, tmp_path):
+    from bodyplan.report.page import write_gap_report_html
+
+    path = tmp_path / "gaps.html"
+    write_gap_report_html(report, path, store.info())
+    parser = _Collector()
+    parser.feed(path.read_text(encoding="utf-8"))
+    # one embedded PNG, nothing fetched from elsewhere
+    assert len(parser.images) == 1 and parser.images[0].startswith("data:image/png;base64,")
+    assert base64.b64decode(parser.images[0].split(",", 1)[1])[:4] == b"\x89PNG"
+    assert "http" not in "".join(parser.images)
+    ranked = parser.tables["under-studied"]
+    assert ranked[0][:3] == ["rank", "species", "stage"]
+    assert sorted(r[1] for r in ranked[1:]) == sorted(store.ids("species"))
+    assert [r[1] for r in ranked[1:]] == list(report.under_studied["species"])
+    assert [r[0] for r in parser.tables["most-wanted"][1:]] == list(report.most_wanted["parameter"])
+    # every covered cell is listed with its sources, and every source is cited
+    cells = parser.tables["cells"][1:]
+    covered = report.coverage[report.coverage["state"] != "absent"]
+    assert len(cells) == len(covered)
+    cited = {r[0] for r in parser.tables["sources"][1:]}
+    assert {s for r in cells for s in r[-1].split("; ")} == cited
+    assert [r[0] for r in parser.tables["states"][1:]] == STATES
+
+
+def test_cli_gaps(store, tmp_path):
+    from click.testing import CliRunner
+
+    from bodyplan.cli import cli
+
+    runner = CliRunner()
+    result = runner.invoke(cli, ["gaps", "--format", "json", "--store", str(store.path)])
+    assert result.exit_code == 0, result.output
+    data = json.loads(result.output)
+    assert {r["species"] for r in data["readiness"]} == set(store.ids("species"))
+    out = tmp_path / "r.html"
+    result = runner.invoke(cli, ["gaps", "--species", "human", "--species", "dog", "--layout", "rich_slow",
+                                 "--out", str(out), "--store", str(store.path)])
+    assert result.exit_code == 0, result.output
+    assert out.stat().st_size > 10_000 and "human" in result.output and "dog" in result.output
+    csv = runner.invoke(cli, ["gaps", "--species", "rat", "--format", "csv", "--store", str(store.path)])
+    frame = pd.read_csv(io.StringIO(csv.output))
+    assert set(frame["species"]) == {"rat"} and len(frame) == len(layout_parameters(load_layout("whole_body")))
+    bad = runner.invoke(cli, ["gaps", "--out", str(tmp_path / "x.txt"), "--store", str(store.path)])
+    assert bad.exit_code != 0
+
+
+def test_unknown_species_is_refused(store):
+    from bodyplan.api import UnknownIdError
+
+    with pytest.raises(UnknownIdError):
+        gap_report(store, ["unicorn"])
+
+
+def test_store_method_matches_function(store, report):
+    same = store.gap_report()
+    pd.testing.assert_frame_equal(same.coverage, report.coverage)
+    pd.testing.assert_frame_equal(same.readiness, report.readiness)
