@@ -27,7 +27,8 @@ def _report(frame: pd.DataFrame, mask, column: str, message, findings: Findings,
 
 
 def numeric(frame: pd.DataFrame, column: str) -> pd.Series:
-    return pd.to_numeric(frame[column].str.strip().replace("", np.nan), errors="coerce")
+    number = pd.to_numeric(frame[column].str.strip().replace("", np.nan), errors="coerce")
+    return number.where(np.isfinite(number))  # 'inf' or '1e400' is reported by check_shape, not used
 
 
 def check_shape(frame: pd.DataFrame, descriptor: dict, findings: Findings, skip: set) -> None:
@@ -50,7 +51,7 @@ def check_shape(frame: pd.DataFrame, descriptor: dict, findings: Findings, skip:
                                       f"{s['description'][1:]}", findings, skip)
         if spec["type"] in ("number", "integer"):
             as_number = pd.to_numeric(col.where(~empty), errors="coerce")
-            _report(frame, ~empty & as_number.isna(), name,
+            _report(frame, ~empty & ~np.isfinite(as_number), name,
                     lambda v: f"{v!r} is not a number; write digits with '.' as decimal point", findings, skip)
             if spec["type"] == "integer":
                 fractional = as_number.notna() & (as_number != np.floor(as_number))
@@ -209,7 +210,10 @@ def _measure(frame, column, dimension, unit, findings, skip, what) -> np.ndarray
             q = parse_unit(text)
             if q.dimensionality != parse_unit(unit).dimensionality:
                 raise UnitError(f"{text!r} is not {what}; write e.g. {dimension}")
-            out[index] = q.to(unit).magnitude
+            amount = float(q.to(unit).magnitude)
+            if not np.isfinite(amount):
+                raise UnitError(f"{text!r} is not a finite amount; write e.g. {dimension}")
+            out[index] = amount
         except (UnitError, Exception) as exc:  # pint's own errors included
             message = str(exc) if isinstance(exc, UnitError) else f"cannot read {text!r}; write e.g. {dimension}"
             _report(frame.iloc[index], np.ones(len(index)), column, message, findings, skip)

@@ -85,8 +85,10 @@ def conversion(unit: str, canonical_unit: str, per: str = "") -> tuple[Form, flo
     reported = parse_unit(unit)
     for form in forms(canonical_unit, per):
         if reported.dimensionality == form.dimensionality:
-            factor = (reported / parse_unit(form.canonical_unit)).to("dimensionless").magnitude
-            return form, float(factor)
+            factor = float((reported / parse_unit(form.canonical_unit)).to("dimensionless").magnitude)
+            if not (0 < factor < float("inf")):  # "0", "nan" or "inf" parse as plain numbers
+                raise UnitError(f"unit {unit!r} scales values by {factor}; give a unit such as 'g' or '%'")
+            return form, factor
     accepted = " or ".join(f"{dimension_text(f.dimensionality)} ({f.words}, e.g. {f.canonical_unit})"
                            for f in forms(canonical_unit, per))
     raise UnitError(

@@ -1,0 +1,44 @@
+"""Shared fixtures: the small good tree of tests/data/good/ and a store built from the bundled files."""
+
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+
+import pytest
+
+DATA = Path(__file__).parent / "data"
+GOOD = DATA / "good"
+
+
+def make_tree(dest: Path, *overlays: Path) -> Path:
+    """Copy the good tree to ``dest`` and lay each overlay folder over it (its files replace or add)."""
+    shutil.copytree(GOOD, dest)
+    for overlay in overlays:
+        shutil.copytree(overlay, dest, dirs_exist_ok=True)
+    return dest
+
+
+@pytest.fixture
+def fixture_tree(tmp_path) -> Path:
+    """A private copy of tests/data/good/ that a test may edit."""
+    return make_tree(tmp_path / "curated")
+
+
+@pytest.fixture(scope="session")
+def bundled_store(tmp_path_factory) -> Path:
+    """The bundled curated files built into a temporary store; nothing global is set."""
+    from bodyplan.api.locate import bundled_data_dir
+    from bodyplan.ingest import build
+
+    out = tmp_path_factory.mktemp("bundled") / "bodyplan.sqlite"
+    build(bundled_data_dir(), out)
+    return out
+
+
+@pytest.fixture
+def scenario_tree(tmp_path):
+    """A function: scenario folder under tests/data/ (e.g. 'bad/duplicate_id') → good tree with it laid over."""
+    def make(name: str) -> Path:
+        return make_tree(tmp_path / name.replace("/", "_"), DATA / name)
+    return make

@@ -1,0 +1,134 @@
+"""Each kind of bad input, as a small overlay of tests/data/good/, gives exactly one located finding.
+
+The overlays live in tests/data/bad/<scenario>/ (errors) and tests/data/warn/<scenario>/ (plausibility
+warnings); every number in them is invented for tests.
+"""
+
+from __future__ import annotations
+
+import shutil
+
+import pytest
+
+from bodyplan.ingest import CuratedDataError, build, check
+
+HEADER = ("id,species,life_stage,age,sex,strain,compartment,quantity,value,unit,uncertainty,spread,low,high,n,"
+          "body_mass,basis,locator,verified,missing_reason,comment")
+V = "values/testsource2020.csv"
+
+ERRORS = {
+    "unknown_unit": f"{V}:6: unit: cannot read unit 'mL/mni/(100 g)' ('mni' is not defined in the unit "
+                    "registry); write it in pint syntax, e.g. 'mL/min/kg'",
+    "wrong_dimension": f"{V}:6: unit: unit 'kg' has dimension [mass] but this quantity needs [length] ** 3 / [time] "
+                       "(absolute, e.g. L/h) or [length] ** 3 / [time] / [mass] (per kg tissue mass, e.g. L/h/kg)",
+    "fraction_above_1": f"{V}:4: value: 290 is a fraction above 1 (above 100 %); check the unit ('%' or '1')",
+    "negative_mass": f"{V}:3: value: -350 is negative; physiological amounts are never below 0",
+    "unknown_species": f"{V}:7: species: unknown species 'dgo'; use an id from vocab/species.csv or add it there",
+    "unknown_source_key": "values/nosuchsource1999.csv:1: file: no BibTeX entry 'nosuchsource1999' in sources.bib; "
+                          "the file name must be the source's citation key",
+    "duplicate_id": f"{V}:9: id: id 'dog_co' appears more than once; make each id unique",
+    "missing_column": f"{V}:1: locator: missing column 'locator'; the header must be: {HEADER}",
+    "non_utf8": f"{V}:5: file: byte 0xe9 is not UTF-8; save the file as UTF-8",
+    "empty_value_without_reason": f"{V}:2: value: is empty without a missing_reason; give the value, or say why "
+                                  "the source lacks it",
+}
+
+WARNINGS = {
+    "out_of_range": f"{V}:2: value: warning: 12000 kg lies outside the plausible range 0.001..10000 kg for "
+                    "body_mass; check the unit and the number against the source",
+    "mass_fractions_above_1": f"{V}:4: value: warning: organ mass fractions of dog (adult) in this source sum to "
+                              "1.070, above 1; check for a part counted with its whole or a % read as 1",
+}
+
+
+def test_good_tree_is_clean(fixture_tree):
+    findings, tree, frame = check(fixture_tree)
+    assert [str(f) for f in findings.sorted()] == []
+    assert len(frame) == 12
+
+
+def test_every_scenario_folder_has_an_expectation():
+    from pathlib import Path
+
+    data = Path(__file__).parent / "data"
+    assert {p.name for p in (data / "bad").iterdir()} == set(ERRORS)
+    assert {p.name for p in (data / "warn").iterdir()} == set(WARNINGS)
+
+
+@pytest.mark.parametrize("scenario", sorted(ERRORS))
+def test_bad_input_gives_one_located_error(scenario, scenario_tree):
+    findings, _, _ = check(scenario_tree(f"bad/{scenario}"))
+    assert [str(f) for f in findings.sorted()] == [ERRORS[scenario]]
+
+
+@pytest.mark.parametrize("scenario", sorted(ERRORS))
+def test_bad_input_blocks_the_build(scenario, scenario_tree, tmp_path):
+    out = tmp_path / "store.sqlite"
+    with pytest.raises(CuratedDataError) as caught:
+        build(scenario_tree(f"bad/{scenario}"), out)
+    assert [str(f) for f in caught.value.findings.errors] == [ERRORS[scenario]]
+    assert not out.exists()
+    assert list(tmp_path.glob(".store.sqlite.*")) == []  # no temporary file left behind
+
+
+@pytest.mark.parametrize("scenario", sorted(WARNINGS))
+def test_plausibility_warning(scenario, scenario_tree, tmp_path):
+    tree = scenario_tree(f"warn/{scenario}")
+    findings, _, _ = check(tree)
+    assert findings.errors == []
+    assert [str(f) for f in findings.warnings] == [WARNINGS[scenario]]
+    result = build(tree, tmp_path / "store.sqlite")  # warnings do not block a build
+    assert [str(f) for f in result.warnings] == [WARNINGS[scenario]]
+
+
+def test_empty_value_with_reason_is_kept_as_a_gap(fixture_tree, tmp_path):
+    import sqlite3
+
+    out = build(fixture_tree, tmp_path / "store.sqlite").path
+    row = sqlite3.connect(out).execute(
+        "SELECT value, value_canonical, missing_reason FROM curated_values WHERE row_id = 'rat_brain_mass'").fetchone()
+    assert row == (None, None, "not determined")
+
+
+def test_reason_beside_a_value_is_an_error(fixture_tree):
+    path = fixture_tree / V
+    path.write_text(path.read_text().replace(",12,kg,sd,1.5,,,6,,measured,Table 1,no,,",
+                                             ",12,kg,sd,1.5,,,6,,measured,Table 1,no,not reported,"))
+    findings, _, _ = check(fixture_tree)
+    assert [str(f) for f in findings.errors] == [
+        f"{V}:2: missing_reason: is given but the value is not empty; clear one of them"]
+
+
+def test_missing_vocabulary_file(fixture_tree):
+    (fixture_tree / "vocab" / "life_stages.csv").unlink()
+    findings, _, _ = check(fixture_tree)
+    assert "vocab/life_stages.csv:0: file: is missing; every curated tree needs vocab/life_stages.csv" in \
+        [str(f) for f in findings.errors]
+
+
+def test_row_with_too_many_fields(fixture_tree):
+    path = fixture_tree / V
+    lines = path.read_text().splitlines(keepends=True)
+    lines[2] = lines[2].replace("invented for tests", "invented, for tests")
+    path.write_text("".join(lines))
+    findings, _, _ = check(fixture_tree)
+    assert [str(f) for f in findings.errors] == [
+        f"{V}:3: row: has 22 fields but the header has 21; quote fields that contain commas"]
+
+
+def test_line_numbers_count_quoted_line_breaks(fixture_tree):
+    path = fixture_tree / V
+    lines = path.read_text().splitlines(keepends=True)
+    lines[1] = lines[1].replace("invented for tests", '"invented for tests\nover two lines"')
+    lines[3] = lines[3].replace(",tissue_mass_fraction,", ",tissue_mas_fraction,")
+    path.write_text("".join(lines))
+    findings, _, _ = check(fixture_tree)
+    assert [str(f) for f in findings.errors] == [
+        f"{V}:5: quantity: unknown quantity 'tissue_mas_fraction'; use an id from vocab/quantities.csv or add it there"]
+
+
+def test_source_without_values_file_is_allowed(fixture_tree):
+    shutil.rmtree(fixture_tree / "values")
+    (fixture_tree / "values").mkdir()
+    findings, _, frame = check(fixture_tree)
+    assert findings.errors == [] and len(frame) == 0
