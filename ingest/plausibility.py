@@ -29,7 +29,7 @@ def check_ranges(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> 
             out = group[(group["_value_canonical"] < low * f) | (group["_value_canonical"] > high * f)]
             for row in out.to_dict("records"):
                 findings.warn(row["_file"], row["_line"], "value",
-                              f"{row['value']} {row['unit']} lies outside the plausible range {low}..{high} {unit} "
+                              f"{row['value']} {row['unit']} lies outside the plausible range {low:g}..{high:g} {unit} "
                               f"for {quantity}; check the unit and the number against the source")
 
 
