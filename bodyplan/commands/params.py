@@ -48,19 +48,25 @@ def render_table(ps, file=None) -> None:
         v = _fmt(cell["value"], cell["sd"], cell["se"], *(cell.get("interval") or (None, None)))
         return "[bold red]gap[/]" if cell["fill"] == "gap" else v
 
-    table.add_row("cardiac output", "", "", val(co), how(co), ", ".join(co["sources"]))
+    def short(sources):  # the JSON and CSV keep every source; the table names a few
+        sources = list(dict.fromkeys(sources))
+        return ", ".join(sources) if len(sources) <= 4 else ", ".join(sources[:3]) + f" +{len(sources) - 3} more"
+
+    table.add_row("cardiac output", "", "", val(co), how(co), short(co["sources"]))
     for c in d["compartments"]:
-        sources = ", ".join(dict.fromkeys(c["volume"]["sources"] + c["blood_flow"]["sources"]))
         table.add_row(c["compartment"], val(c["volume"]), how(c["volume"]), val(c["blood_flow"]),
-                      how(c["blood_flow"]), sources)
+                      how(c["blood_flow"]), short(c["volume"]["sources"] + c["blood_flow"]["sources"]))
     console.print(table)
     console.print(f"liver flow: {d['liver_flow']}")
     for check in d["checks"]:
         style = {"pass": "green", "warn": "yellow", "fail": "bold red"}[check["status"]]
         console.print(f"[{style}]{check['status']}[/] {check['check']}: {check['detail']}")
     if d["gaps"]:
-        console.print(f"[bold red]{len(d['gaps'])} gap(s)[/]; fill them from other species with "
-                      "--fill allometric, or curate a source (bodyplan gaps shows what is missing)")
+        hint = ("give --body-weight to scale to" if bw["fill"] == "gap" else
+                "fill them from other species with --fill allometric" if ps.fill_policy == "none" else
+                "too few species have these to fit across species")
+        console.print(f"[bold red]{len(d['gaps'])} gap(s)[/]; {hint}, or curate a source "
+                      "(bodyplan gaps shows what is missing)")
     console.print(f"[italic]{CAUTION}[/]")
 
 
