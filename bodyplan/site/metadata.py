@@ -1,0 +1,186 @@
+"""Generate the site's datasette metadata from the schema, the quantities vocabulary and the store.
+
+Curated columns reuse their descriptions in schema/descriptors.py; only columns that exist in the
+store alone (converted values, file positions, sources, build records) are described here.
+"""
+
+from __future__ import annotations
+
+import re
+import sqlite3
+from collections import defaultdict
+from importlib.metadata import PackageNotFoundError, metadata as package_metadata
+from pathlib import Path
+
+from .. import CAUTION
+from ..schema import descriptors
+from .plugin import PLUGIN
+from .queries import QUERIES
+
+DATABASE = "bodyplan"  # the store is always published under this name, whatever its file is called
+FACETS = ["species_id", "life_stage_id", "compartment_id", "quantity_id", "basis", "verified"]
+
+# store column of curated_values → curated-file column whose description it keeps
+CURATED_COLUMN = {"species_id": "species", "life_stage_id": "life_stage", "compartment_id": "compartment",
+                  "quantity_id": "quantity", "row_id": "id"}
+
+TABLE_DESCRIPTIONS = {
+    "curated_values": "One row per value printed in a source, as reported and converted to the quantity's "
+                      "canonical unit, with its uncertainty, subjects, locator and verification flag.",
+    "sources": "The documents values come from: BibTeX entries with a formatted citation and DOI.",
+    "build_info": "How this store was built: content hash, build time and versions.",
+    "input_files": "Every curated file the store was built from, with its SHA-256 hash.",
+}
+
+STORE_COLUMNS = {  # columns that exist only in the store
+    "curated_values": {
+        "id": "Row number in the store (stable only within one build).",
+        "source_id": "Citation key of the source (links to sources).",
+        "age_days": "The age converted to days.",
+        "quantity_kind": "absolute, fraction (0 to 1) or ratio, copied from the quantity.",
+        "unit_canonical": "Canonical unit the value was converted to. {units}",
+        "value_canonical": "The value converted to the canonical unit (unit_canonical says which, in words).",
+        "verified": "1 if the number was read in the source text, 0 if not (pages say so in words).",
+        "normalisation": "none, body_mass, tissue_mass or body_surface: what the canonical value is per.",
+        "sd_canonical": "Standard deviation in the canonical unit, from the sd, se × √n, cv or a 95% "
+                        "interval.",
+        "low_canonical": "Lower bound of a ci95 or range in the canonical unit.",
+        "high_canonical": "Upper bound of a ci95 or range in the canonical unit.",
+        "subject_body_mass_kg": "Subjects' mean body mass in kilograms.",
+        "file": "Curated file the row was read from.",
+        "line": "Line of that file.",
+    },
+    "sources": {
+        "id": "Citation key; also the name of the curated values file.",
+        "entry_type": "BibTeX entry type (article, book, techreport …).",
+        "author": "Authors as in the BibTeX entry.",
+        "title": "Title.",
+        "container": "Journal, book or publisher.",
+        "year": "Year of publication.",
+        "volume": "Volume.",
+        "pages": "Pages.",
+        "doi": "Digital Object Identifier; links to https://doi.org/.",
+        "citation": "Formatted one-line citation.",
+        "bibtex": "The BibTeX entry as curated.",
+        "note": "Note from the BibTeX entry.",
+    },
+    "build_info": {"key": "What is recorded.", "value": "The record."},
+    "input_files": {"path": "Curated file, relative to the curated data folder.",
+                    "sha256": "SHA-256 hash of the file's bytes."},
+}
+
+
+# one factor of a unit between slashes: "kg", "m^2", "(100 g)", "(1.73 m^2)"
+_FACTOR = re.compile(r"^\(?\s*(?:(?P<scale>[0-9.]+)\s+)?(?P<name>[A-Za-z%]+)"
+                     r"(?:\s*(?:\^|\*\*)\s*(?P<power>[23]))?\s*\)?$")
+
+
+def unit_in_words(unit: str) -> str:
+    """'L/h/kg' → 'liter per hour per kilogram'; 'mL/min/(1.73 m^2)' → '… per 1.73 square meter'."""
+    from ..units import ureg
+
+    if unit.strip() == "1":
+        return "a plain number (no unit)"
+    words = []
+    for i, part in enumerate(p.strip() for p in re.split(r"/(?![^(]*\))", unit)):
+        if i == 0 and part == "1":
+            words.append("one")
+            continue
+        match = _FACTOR.match(part)
+        if not match:  # products and other forms: pint's own long spelling
+            return format(ureg.Unit(unit), "D")
+        name = format(ureg.Unit(match["name"]), "D")
+        power = {"2": "square ", "3": "cubic "}.get(match["power"] or "", "")
+        scale = f"{match['scale']} " if match["scale"] else ""
+        words.append(("per " if i else "") + scale + power + name)
+    return " ".join(words)
+
+
+def _words_or_none(unit: str) -> str | None:
+    try:
+        return unit_in_words(unit)
+    except Exception:  # pint raises several unrelated types; the page then shows the unit alone
+        return None
+
+
+def units_sentence(conn: sqlite3.Connection, sql: str) -> str:
+    """Units in words, each with the quantities given in it; ``sql`` yields (unit, normalisation, label)."""
+    from ..units import NORMALISERS
+
+    by_unit = defaultdict(list)
+    for unit, normalisation, label in conn.execute(sql).fetchall():
+        per = NORMALISERS.get(normalisation)
+        by_unit[unit_in_words(unit) + (f" ({per[2]})" if per else "")].append(label)
+    parts = [f"{words} for {', '.join(sorted(labels))}" for words, labels in sorted(by_unit.items())]
+    return ("Units in words: " + "; ".join(parts) + ".") if parts else ""
+
+
+STORED_UNITS = ("SELECT DISTINCT v.unit_canonical, v.normalisation, q.label FROM curated_values v "
+                "JOIN quantities q ON q.id = v.quantity_id")
+VOCABULARY_UNITS = "SELECT canonical_unit, 'none', label FROM quantities"
+
+
+def _licence() -> tuple[str, str | None]:
+    try:
+        text = package_metadata("bodyplan").get("License") or ""
+    except PackageNotFoundError:
+        text = ""
+    return (text, "https://opensource.org/license/mit") if text == "MIT" else (text or "see the project", None)
+
+
+def column_descriptions(conn: sqlite3.Connection, table: str) -> dict[str, str]:
+    vocab = descriptors.VOCABULARIES.get(table)
+    curated = {f["name"]: f["description"] for f in (vocab or descriptors.VALUES)["fields"]}
+    store_only = STORE_COLUMNS.get(table, {})
+    described = {}
+    for (name,) in conn.execute(f"SELECT name FROM pragma_table_info('{table}')"):
+        text = store_only.get(name) or (curated.get(CURATED_COLUMN.get(name, name))
+                                        if vocab or table == "curated_values" else None)
+        if table == "quantities" and name == "canonical_unit":
+            text = f"{text} {units_sentence(conn, VOCABULARY_UNITS)}"
+        elif "{units}" in (text or ""):
+            text = text.format(units=units_sentence(conn, STORED_UNITS))
+        described[name] = (text or "").strip()
+    return described
+
+
+def build_metadata(store: str | Path) -> dict:
+    """The metadata.json of the site, generated from the store it describes."""
+    conn = sqlite3.connect(f"file:{Path(store)}?mode=ro", uri=True)
+    try:
+        info = dict(conn.execute("SELECT key, value FROM build_info").fetchall())
+        tables = [r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table' ORDER BY name")]
+        licence, licence_url = _licence()
+        units = conn.execute("SELECT unit FROM curated_values UNION SELECT unit_canonical FROM curated_values "
+                             "UNION SELECT canonical_unit FROM quantities").fetchall()
+        unit_words = {u: words for (u,) in units if u and (words := _words_or_none(u))}
+        source = f"bodyplan curated files, build {info.get('content_hash', 'unknown')[:16]}"
+        common = {"license": licence, "source": source}
+        if licence_url:
+            common["license_url"] = licence_url
+        table_meta = {}
+        for table in tables:
+            vocab = descriptors.VOCABULARIES.get(table)
+            entry = dict(common,
+                         description=TABLE_DESCRIPTIONS.get(table) or (vocab or {}).get("description", ""),
+                         columns=column_descriptions(conn, table))
+            if table == "curated_values":
+                entry["facets"] = FACETS
+            table_meta[table] = entry
+    finally:
+        conn.close()
+    return dict(
+        common,
+        title="bodyplan: species physiology for PBPK modelling",
+        description_html=(
+            "<p>Curated physiology of many species (organ masses and volumes, blood flows, cardiac output, "
+            "GFR, hematocrit, tissue composition), every value with its source, locator, uncertainty, "
+            "unit and verification flag. Read-only.</p>"
+            f"<p class=\"bodyplan-caution\"><strong>Caution:</strong> {CAUTION}</p>"
+            "<p>Start with <a href=\"/bodyplan/curated_values\">curated values</a> (facet by species, "
+            "stage, compartment, quantity, basis, verified) or a named query (parameter set, one parameter "
+            "across species, coverage and gaps) on <a href=\"/bodyplan\">the store's page</a>.</p>"),
+        databases={DATABASE: dict(common, description="The bodyplan store: vocabularies, sources and values.",
+                                  tables=table_meta, queries=QUERIES)},
+        plugins={PLUGIN: {"caution": CAUTION, "unit_words": unit_words}},
+    )

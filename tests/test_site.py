@@ -1,0 +1,277 @@
+"""The read-only site, in-process through datasette's test client (no server, no browser)."""
+
+from __future__ import annotations
+
+import asyncio
+import hashlib
+import json
+import sqlite3
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from bodyplan import CAUTION
+from bodyplan.site.app import SETTINGS, make_datasette, plugin_file, write_site
+from bodyplan.site.metadata import FACETS, unit_in_words
+from bodyplan.site.plugin import describe_value
+from bodyplan.site.queries import QUERIES
+
+FIXTURE_TREE = Path(__file__).parent / "data" / "site"  # invented values, for when the bundled data fails
+
+
+def build_site_store(path: Path) -> Path:
+    """The bundled curated files built into ``path``; the fixture tree while curation leaves them invalid."""
+    from bodyplan.api.locate import bundled_data_dir
+    from bodyplan.ingest import CuratedDataError, build
+
+    try:
+        build(bundled_data_dir(), path)
+    except CuratedDataError:
+        build(FIXTURE_TREE, path)
+    return path
+
+
+@pytest.fixture(scope="module")
+def store(tmp_path_factory) -> Path:
+    return build_site_store(tmp_path_factory.mktemp("site") / "store.sqlite")
+
+
+@pytest.fixture(scope="module")
+def sample(store) -> dict:
+    """Ids to ask for, read from whichever store was built (dog when it has values)."""
+    conn = sqlite3.connect(store)
+    one = lambda sql, *p: conn.execute(sql, p).fetchone()  # noqa: E731
+    species = one("SELECT species_id FROM curated_values WHERE species_id = 'dog' AND value IS NOT NULL") or \
+        one("SELECT species_id FROM curated_values GROUP BY species_id ORDER BY count(*) DESC")
+    species = species[0]
+    stage, compartment, quantity = one("SELECT life_stage_id, compartment_id, quantity_id FROM curated_values "
+                                       "WHERE species_id = ? ORDER BY id", species)
+    value_id, source = one("SELECT id, source_id FROM curated_values WHERE species_id = ? AND uncertainty "
+                           "IN ('sd', 'se') AND value IS NOT NULL ORDER BY id", species) or \
+        one("SELECT id, source_id FROM curated_values WHERE species_id = ? ORDER BY id", species)
+    tables = [r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")]
+    return dict(species=species, life_stage=stage, compartment=compartment, quantity=quantity,
+                value_id=value_id, source=source, tables=tables,
+                source_count=one("SELECT count(*) FROM curated_values WHERE source_id = ?", source)[0],
+                compartments=[r[0] for r in conn.execute("SELECT id FROM compartments")],
+                species_values=one("SELECT count(*) FROM curated_values WHERE species_id = ?", species)[0])
+
+
+def fetch(datasette, *requests):
+    """Run (method, path[, data]) requests in one event loop; return the responses."""
+    async def run():
+        await datasette.invoke_startup()
+        out = []
+        for method, path, *data in requests:
+            if method == "GET":
+                out.append(await datasette.client.get(path))
+            else:
+                out.append(await datasette.client.post(path, data=data[0] if data else {}))
+        return out
+    return asyncio.run(run())
+
+
+def get(datasette, path):
+    return fetch(datasette, ("GET", path))[0]
+
+
+def sha256(path: Path) -> str:
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+# --- rendering ---------------------------------------------------------------------------------------
+
+def test_value_shows_spread_unit_and_n():
+    row = dict(value=3.29, unit="%", uncertainty="sd", spread=0.41, low=None, high=None, n=12)
+    assert describe_value(row) == "3.29 ± 0.41 % (sd, n = 12)"
+
+
+def test_value_shows_interval_cv_and_missing():
+    ci = dict(value=0.55, unit="%", uncertainty="ci95", spread=None, low=0.48, high=0.62, n=12)
+    assert describe_value(ci) == "0.55 % (95% CI 0.48 to 0.62 %, n = 12)"
+    cv = dict(value=150, unit="mL/min/kg", uncertainty="cv", spread=10, low=None, high=None, n=None)
+    assert describe_value(cv) == "150 mL/min/kg (cv 10 %)"
+    missing = dict(value=None, unit="%", uncertainty="none", missing_reason="not reported")
+    assert describe_value(missing) == "no value: not reported"
+
+
+def test_units_in_words():
+    assert unit_in_words("L/h/kg") == "liter per hour per kilogram"
+    assert unit_in_words("m^2") == "square meter"
+    assert unit_in_words("1") == "a plain number (no unit)"
+    assert unit_in_words("1/d") == "one per day"
+    assert unit_in_words("mL/min/(1.73 m^2)") == "milliliter per minute per 1.73 square meter"
+
+
+# --- pages, metadata, facets, named queries -----------------------------------------------------------
+
+def test_every_table_answers_as_page_and_json(store, sample):
+    ds = make_datasette(store)
+    responses = fetch(ds, *[("GET", f"/bodyplan/{t}") for t in sample["tables"]],
+                      *[("GET", f"/bodyplan/{t}.json?_shape=array&_size=5") for t in sample["tables"]])
+    assert [r.status_code for r in responses] == [200] * len(responses)
+    for response in responses[len(sample["tables"]):]:
+        assert isinstance(response.json(), list)
+
+
+def test_every_named_query_answers(store, sample):
+    params = {"parameter_set": f"species={sample['species']}&life_stage={sample['life_stage']}",
+              "parameter_across_species": f"quantity={sample['quantity']}&compartment={sample['compartment']}",
+              "coverage": f"species={sample['species']}",
+              "source_values": f"source={sample['source']}"}
+    assert set(params) == set(QUERIES)
+    ds = make_datasette(store)
+    for name, query in params.items():
+        response = get(ds, f"/bodyplan/{name}.json?{query}&_shape=objects")
+        assert response.status_code == 200, name
+        rows = response.json()["rows"]
+        assert rows, f"{name} returned no rows for {query}"
+    by_source = get(ds, f"/bodyplan/source_values.json?source={sample['source']}&_shape=array").json()
+    assert len(by_source) == sample["source_count"]
+
+
+def test_coverage_lists_every_compartment_even_without_values(store, sample):
+    ds = make_datasette(store)
+    rows = get(ds, f"/bodyplan/coverage.json?species={sample['species']}&_shape=array").json()
+    assert {r["compartment"] for r in rows} == set(sample["compartments"])
+    assert sum(r["rows_curated"] for r in rows) == sample["species_values"]
+    assert {"gap", "covered"} <= {r["status"] for r in rows}
+
+
+def test_metadata_describes_every_table_and_column(store, sample):
+    ds = make_datasette(store)
+    meta = get(ds, "/-/metadata.json").json()
+    assert CAUTION in meta["description_html"]
+    tables = meta["databases"]["bodyplan"]["tables"]
+    conn = sqlite3.connect(store)
+    for table in sample["tables"]:
+        entry = tables[table]
+        assert entry["license"] and entry["source"] and entry["description"], table
+        columns = [r[1] for r in conn.execute(f"PRAGMA table_info('{table}')")]
+        assert set(entry["columns"]) == set(columns), table
+        assert all(entry["columns"].values()), f"{table} has a column without description"
+    assert "liter per hour" in tables["quantities"]["columns"]["canonical_unit"]
+
+
+def test_front_page_shows_title_and_caution(store):
+    page = get(make_datasette(store), "/").text
+    assert "bodyplan: species physiology for PBPK modelling" in page
+    assert CAUTION in page
+
+
+def test_table_page_shows_description_licence_and_facets(store, sample):
+    ds = make_datasette(store)
+    page = get(ds, "/bodyplan/curated_values").text
+    assert "One row per value printed in a source" in page and "MIT" in page
+    data = get(ds, f"/bodyplan/curated_values.json?species_id={sample['species']}").json()
+    assert set(data["facet_results"]) == set(FACETS)
+    species = data["facet_results"]["species_id"]["results"]
+    assert [(f["value"], f["count"]) for f in species] == [(sample["species"], sample["species_values"])]
+
+
+def test_value_page_shows_uncertainty_verified_and_source_link(store, sample):
+    page = get(make_datasette(store), f"/bodyplan/curated_values/{sample['value_id']}").text
+    conn = sqlite3.connect(store)
+    conn.row_factory = sqlite3.Row
+    row = conn.execute("SELECT * FROM curated_values WHERE id = ?", (sample["value_id"],)).fetchone()
+    assert describe_value(row) in page
+    assert f"{row['unit']} ({unit_in_words(row['unit'])})" in page
+    assert "verified against the source text" in page
+    assert f'href="/bodyplan/sources/{sample["source"]}"' in page
+
+
+def test_source_page_shows_citation_doi_and_all_its_values(store, sample):
+    conn = sqlite3.connect(store)
+    citation, doi = conn.execute("SELECT citation, doi FROM sources WHERE id = ?", (sample["source"],)).fetchone()
+    page = get(make_datasette(store), f"/bodyplan/sources/{sample['source']}").text
+    assert citation.replace("&", "&amp;").replace("'", "&#39;") in page
+    if doi:
+        assert f'href="https://doi.org/{doi}"' in page
+    assert f"Values from this source ({sample['source_count']})" in page
+    assert page.count('href="/bodyplan/curated_values/') >= sample["source_count"]
+
+
+# --- safety -------------------------------------------------------------------------------------------
+
+WRITES = [
+    "INSERT INTO species (id, scientific_name, common_name, ncbi_taxon, taxon_class) "
+    "VALUES ('x', 'x', 'x', 1, 'mammal')",
+    "WITH doomed AS (SELECT id FROM curated_values) DELETE FROM curated_values WHERE id IN (SELECT id FROM doomed)",
+    "UPDATE curated_values SET value = 0",
+    "DROP TABLE sources",
+    "ATTACH DATABASE ':memory:' AS other",
+    "PRAGMA writable_schema = 1",
+]
+
+
+def test_writes_are_refused_and_the_store_is_unchanged(store):
+    from urllib.parse import quote
+
+    before = sha256(store)
+    count = sqlite3.connect(store).execute("SELECT count(*) FROM curated_values").fetchone()[0]
+    ds = make_datasette(store)
+    responses = fetch(ds, *[("GET", f"/bodyplan.json?sql={quote(sql)}") for sql in WRITES],
+                      ("POST", "/bodyplan", {"sql": WRITES[1]}),
+                      ("POST", "/bodyplan/curated_values", {"value": "0"}),
+                      ("POST", "/bodyplan/coverage", {"species": "dog"}),
+                      ("POST", "/bodyplan/curated_values/1/-/delete", {}),
+                      ("POST", "/bodyplan/-/create", {}))
+    for request, response in zip(WRITES + ["POST"] * 5, responses):
+        assert response.status_code >= 400, (request, response.status_code)
+    assert fetch(ds, ("GET", "/bodyplan/curated_values.json?_size=0"))[0].json()["filtered_table_rows_count"] \
+        == count
+    assert sha256(store) == before
+    assert ds.get_database("bodyplan").is_mutable is False
+
+
+def test_select_is_allowed_but_time_limited(store):
+    from urllib.parse import quote
+
+    ds = make_datasette(store)
+    ok = get(ds, "/bodyplan.json?sql=" + quote("SELECT count(*) AS n FROM species") + "&_shape=array")
+    assert ok.status_code == 200 and ok.json()[0]["n"] > 0
+    endless = "WITH RECURSIVE c(i) AS (SELECT 1 UNION ALL SELECT i + 1 FROM c) SELECT max(i) FROM c"
+    slow = get(ds, "/bodyplan.json?sql=" + quote(endless))
+    assert slow.status_code == 400 and "too long" in slow.text
+    assert get(ds, "/-/settings.json").json()["sql_time_limit_ms"] == SETTINGS["sql_time_limit_ms"]
+
+
+def test_serve_listens_on_loopback_by_default():
+    from bodyplan.cli import cli
+
+    result = CliRunner().invoke(cli, ["serve", "--help"])
+    assert result.exit_code == 0 and "127.0.0.1" in result.output
+
+
+# --- site folder --------------------------------------------------------------------------------------
+
+def test_site_folder_serves_as_is(store, tmp_path):
+    from datasette.app import Datasette
+
+    from bodyplan.cli import cli
+
+    out = tmp_path / "site"
+    result = CliRunner().invoke(cli, ["site", "--out", str(out), "--store", str(store)])
+    assert result.exit_code == 0, result.output
+    assert {p.name for p in out.iterdir()} >= {"bodyplan.sqlite", "metadata.json", "inspect-data.json",
+                                               "settings.json", "templates", "plugins"}
+    assert sha256(out / "bodyplan.sqlite") == sha256(store)
+    assert json.loads((out / "inspect-data.json").read_text())["bodyplan"]["file"] == "bodyplan.sqlite"
+    ds = Datasette(config_dir=out)  # exactly what `datasette OUT` builds
+    assert ds.get_database("bodyplan").is_mutable is False
+    source = sqlite3.connect(store).execute("SELECT source_id FROM curated_values LIMIT 1").fetchone()[0]
+    front, source_page = fetch(ds, ("GET", "/"), ("GET", f"/bodyplan/sources/{source}"))
+    assert CAUTION in front.text
+    assert "Values from this source" in source_page.text
+    assert "Caution:" in source_page.text  # the copied _footer.html template is in use
+
+
+def test_site_folder_keeps_unrelated_files(tmp_path, store):
+    """Writing into an existing folder replaces the site's files and keeps unrelated ones."""
+    out = tmp_path / "site"
+    out.mkdir()
+    (out / "README.txt").write_text("kept")
+    write_site(out, store)
+    assert (out / "README.txt").read_text() == "kept"
+    assert (out / "plugins" / "bodyplan_site.py").read_text() == plugin_file().read_text()
