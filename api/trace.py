@@ -1,4 +1,9 @@
-"""Trace a parameter to its curated rows: which sources, where in them, and how they combine."""
+"""Trace a parameter to its curated rows: which sources, where in them, and how they combine.
+
+The combination is the parameter set's own (``resolve_parameter``): a volume per kg body
+weight from masses, fractions or volumes, a flow as a fraction of cardiac output, and so on,
+with every row it used and the route that row took.
+"""
 
 from __future__ import annotations
 
@@ -21,7 +26,7 @@ class Trace:
     compartment: str | None
     sex: str | None
     rows: pd.DataFrame
-    combined: list[dict] = field(default_factory=list)  # one per (compartment, canonical unit)
+    combined: list[dict] = field(default_factory=list)  # the parameter set's resolution, one per compartment
     note: str | None = None  # why no combination could be shown
 
     def to_dict(self) -> dict:
@@ -33,13 +38,26 @@ class Trace:
                 "combined": self.combined, "note": self.note, "caution": CAUTION}
 
 
-def _combiner():
-    """The parameter set's own combination rule, so trace shows exactly what a parameter set uses."""
+PARAMETERS = {  # curated quantity → the parameter-set parameter its rows feed, and that parameter's unit
+    "tissue_volume": ("volume", "L per kg body weight"),
+    "tissue_mass": ("volume", "L per kg body weight"),
+    "tissue_mass_fraction": ("volume", "L per kg body weight"),
+    "blood_volume": ("volume", "L per kg body weight"),
+    "plasma_volume": ("volume", "L per kg body weight"),
+    "blood_flow": ("blood_flow", "fraction of cardiac output"),
+    "blood_flow_fraction": ("blood_flow", "fraction of cardiac output"),
+    "cardiac_output": ("cardiac_output", "L/h per kg body weight"),
+    "body_mass": ("body_weight", "kg"),
+}
+
+
+def _resolver():
+    """The parameter set's own resolution, so trace shows exactly the numbers a parameter set uses."""
     try:
-        from .parameters import combine_rows
+        from .parameters import resolve_parameter
     except ImportError:
         return None
-    return combine_rows
+    return resolve_parameter
 
 
 def _plain(x):
@@ -52,12 +70,7 @@ def _plain(x):
 
 def estimate_dict(estimate) -> dict:
     """The fields of a combined estimate that a curator reads (value, se, sd, range, method, sources)."""
-    if isinstance(estimate, dict):
-        get = estimate.get
-    else:
-        def get(name, default=None):
-            return getattr(estimate, name, default)
-    return {name: _plain(get(name, None)) for name in ESTIMATE_FIELDS}
+    return {name: _plain(getattr(estimate, name, None)) for name in ESTIMATE_FIELDS}
 
 
 def trace(store, species: str, quantity: str, compartment: str | None = None, *, life_stage: str = "adult",
@@ -76,14 +89,33 @@ def trace(store, species: str, quantity: str, compartment: str | None = None, *,
         result.note = (f"no curated rows for {species} {life_stage} {quantity}"
                        f"{' in ' + compartment if compartment else ''}: a gap")
         return result
-    combine = _combiner()
-    if combine is None:
-        result.note = ("the parameter set's combination (bodyplan.api.parameters.combine_rows) is not in this "
+    if quantity not in PARAMETERS:
+        result.note = f"parameter sets do not use {quantity}; the rows are shown uncombined"
+        return result
+    resolve = _resolver()
+    if resolve is None:
+        result.note = ("the parameter set's resolution (bodyplan.api.parameters.resolve_parameter) is not in this "
                        "version; the rows are shown uncombined")
         return result
-    have = frame[frame["value_canonical"].notna()]
-    for (comp, unit), group in have.groupby(["compartment", "unit_canonical"], sort=True):
-        entry = {"compartment": comp, "unit": unit, "rows": len(group)}
-        entry.update(estimate_dict(combine(group)))
-        result.combined.append(entry)
+    parameter, unit = PARAMETERS[quantity]
+    places = ["whole_body"] if parameter in ("cardiac_output", "body_weight") else \
+        sorted(set(frame["compartment"]) if compartment is None else {compartment})
+    for place in places:
+        resolved = resolve(store, species, place, parameter, life_stage=life_stage, sex=sex)
+        result.combined.append(combination(place, parameter, unit, resolved))
     return result
+
+
+def combination(compartment: str, parameter: str, unit: str, resolved) -> dict:
+    """One parameter as the parameter set resolves it: the estimate, and every row it used with its route."""
+    entry = {"compartment": compartment, "parameter": parameter, "unit": unit}
+    entry.update(estimate_dict(resolved.estimate) if resolved.estimate is not None else
+                 {name: None for name in ESTIMATE_FIELDS})
+    if resolved.notes:
+        entry["method"] = f"{entry['method']} ({'; '.join(resolved.notes)})"
+    entry["reason"] = resolved.reason or None
+    entry["rows_used"] = [{"source": r.get("source_id"), "row_id": r.get("row_id"),
+                           "quantity": r.get("quantity_id"), "compartment": r.get("compartment_id"),
+                           "route": r.get("_route"), "value_in_unit": _plain(r.get("_value")),
+                           "at": f"{r.get('file')}:{r.get('line')}"} for r in resolved.rows]
+    return entry

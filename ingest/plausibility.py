@@ -81,6 +81,13 @@ def _fmt(x: float) -> str:
     return f"{x:.4g}"
 
 
+def _times(ratio: float) -> str:
+    """4.69 → '4.69× above', 0.00047 → '1/2,128 of'."""
+    x = ratio if ratio >= 1 else 1 / ratio
+    text = f"{x:.3g}" if x < 1000 else f"{x:,.0f}"
+    return f"{text}× above" if ratio >= 1 else f"1/{text} of"
+
+
 def _positive(frame: pd.DataFrame) -> pd.DataFrame:
     have = frame["_value_canonical"].notna() & (frame["_value_canonical"] > 0)
     return frame[have]
@@ -117,7 +124,7 @@ def check_outliers(frame: pd.DataFrame, findings: Findings, factor: float = OUTL
             ratio = row["_value_canonical"] / reference
             if 1 / factor <= ratio <= factor:
                 continue
-            how = f"{ratio:.3g}× above" if ratio > 1 else f"1/{1 / ratio:.3g} of"
+            how = _times(ratio)
             findings.warn(row["_file"], row["_line"], "value",
                           f"{row['value']} {row['unit']} ({_fmt(row['_value_canonical'])} {row['_unit_canonical']}) "
                           f"is {how} {what} for {row['species']} {row['life_stage']} {row['compartment']} "
@@ -155,9 +162,10 @@ def check_unit_typos(frame: pd.DataFrame, findings: Findings) -> None:
                 continue  # units of similar size, or a value in line with the others
             if abs(np.log10(ratio) - np.log10(unit_ratio)) > 1:
                 continue  # the gap is not the one the unit change would explain
+            how = _times(ratio)
             findings.warn(row["_file"], row["_line"], "unit",
                           f"{row['value']} {unit} ({_fmt(row['_value_canonical'])} {row['_unit_canonical']}) is "
-                          f"about {_fmt(ratio)}× the median {_fmt(reference)} {row['_unit_canonical']} of "
+                          f"about {how} the median {_fmt(reference)} {row['_unit_canonical']} of "
                           f"{len(others)} other {row['quantity']} row(s) of {row['species']} in this file, which "
                           f"use {other_unit!r}; is {unit!r} a typo for {other_unit!r}? check the unit in the source")
 

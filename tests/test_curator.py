@@ -141,7 +141,7 @@ def test_suspicious_unit(tree):
                                      "Table 1,no,,invented for tests: planted unit typo")
     found = [w for w in warnings_of(tree) if ": unit: " in w]
     assert found == [
-        f"values/testb2001.csv:{line}: unit: warning: 0.08 g (8e-05 kg) is about 0.0004267× the median 0.1875 kg "
+        f"values/testb2001.csv:{line}: unit: warning: 0.08 g (8e-05 kg) is about 1/2,344 of the median 0.1875 kg "
         "of 2 other tissue_mass row(s) of dog in this file, which use 'kg'; is 'g' a typo for 'kg'? "
         "check the unit in the source"]
 
@@ -205,17 +205,37 @@ def test_trace_unknown_id_is_one_clean_error(store_path):
     assert result.exit_code != 0 and "unknown quantity 'kidney_mass'" in str(result.exception)
 
 
-def test_trace_combination_is_the_parameter_sets(store_path):
+def test_trace_numbers_are_the_parameter_sets(store_path):
     parameters = pytest.importorskip("bodyplan.api.parameters")
-    if not hasattr(parameters, "combine_rows"):
-        pytest.skip("bodyplan.api.parameters.combine_rows is not in this version")
+    if not hasattr(parameters, "resolve_parameter"):
+        pytest.skip("bodyplan.api.parameters.resolve_parameter is not in this version")
     from bodyplan.api import open_store
     from bodyplan.api.trace import trace
 
     store = open_store(store_path)
-    result = trace(store, "dog", "gfr")
-    [combined] = result.combined
-    rows = store.values(species="dog", life_stage="adult", quantity="gfr")
-    expected = parameters.combine_rows(rows[rows["value_canonical"].notna()])
-    assert combined["value"] == pytest.approx(expected.value)
-    assert combined["method"] == expected.method
+    layout = str(FIXTURE / "layouts" / "organs.toml")
+    dog = store.parameter_set("dog", layout=layout)
+    bw = dog.body_weight.value
+    combined = {c["compartment"]: c for c in trace(store, "dog", "tissue_mass").combined}
+    assert set(combined) == {"kidney", "liver"}
+    for organ, entry in combined.items():
+        cell = dog.volumes[organ]
+        assert entry["value"] * bw == pytest.approx(cell.value, rel=1e-12)
+        assert entry["method"] == cell.method
+        assert tuple(entry["sources"]) == cell.sources
+    assert [r["at"] for r in combined["liver"]["rows_used"]] == [
+        "values/testa2000.csv:7", "values/testb2001.csv:5", "values/testc2002.csv:6"]
+
+    human = store.parameter_set("human", body_weight="70 kg", layout=layout)
+    [co] = trace(store, "human", "cardiac_output").combined
+    assert co["value"] * 70 == pytest.approx(human.cardiac_output.value, rel=1e-12)
+    assert co["se"] * 70 == pytest.approx(human.cardiac_output.se, rel=1e-12)
+
+
+def test_trace_says_when_parameter_sets_do_not_use_a_quantity(store_path):
+    from bodyplan.api import open_store
+    from bodyplan.api.trace import trace
+
+    result = trace(open_store(store_path), "human", "hematocrit")
+    assert result.combined == [] and "do not use hematocrit" in result.note
+    assert list(result.rows["value"]) == [44.0]

@@ -93,6 +93,18 @@ def _trace_table(rows):
                                       "n", "canonical", "sd (canonical)", "verified", "at"])
 
 
+def _combination_line(c: dict) -> str:
+    head = f"parameter set: {c['compartment']} {c['parameter']}"
+    if c["value"] is None:
+        return f"{head}: gap ({c['reason']})"
+    spread = f", se {_num(c['se'])}" if c.get("se") is not None else \
+        f", sd {_num(c['sd'])}" if c.get("sd") is not None else ""
+    kind = "95 % prediction interval" if "prediction interval" in (c["method"] or "") else "range of study values"
+    span = f", {kind} {_num(c['low'])}..{_num(c['high'])}" if c.get("low") is not None else ""
+    studies = f"{c['n_studies']} stud{'y' if c['n_studies'] == 1 else 'ies'}"
+    return f"{head} = {_num(c['value'])} {c['unit']}{spread}{span}; {c['method']}; {studies}; rows used:"
+
+
 @click.command("trace")
 @click.argument("species")
 @click.argument("quantity")
@@ -119,11 +131,10 @@ def trace_cmd(species, quantity, compartment, life_stage, sex, fmt, store_path):
     for source, citation in result.rows[["source", "citation"]].drop_duplicates().itertuples(index=False):
         click.echo(f"{source}: {citation}")
     for c in result.combined:
-        spread = f", se {c['se']:.4g}" if c.get("se") is not None else \
-            f", sd {c['sd']:.4g}" if c.get("sd") is not None else ""
-        span = f", study range {c['low']:.4g}..{c['high']:.4g}" if c.get("low") is not None else ""
-        click.echo(f"{c['compartment']}: {c['value']:.4g} {c['unit']}{spread}{span} "
-                   f"({c['method']}; {c['n_studies']} stud{'y' if c['n_studies'] == 1 else 'ies'}, {c['rows']} row(s))")
+        click.echo(_combination_line(c))
+        for r in c["rows_used"]:
+            click.echo(f"    {r['source']} {r['row_id']} ({r['quantity']} in {r['compartment']}, route {r['route']}): "
+                       f"{_num(r['value_in_unit'])}  {r['at']}")
     if result.note:
         click.echo(f"note: {result.note}")
     click.echo(CAUTION)
