@@ -50,6 +50,19 @@ def example_line() -> str:
     return out.getvalue()
 
 
+def columns_markdown() -> str:
+    """The values-file columns as a Markdown table, from the descriptors (DEVELOPERS.md carries this text)."""
+    lines = ["| column | required | allowed | meaning |", "|---|---|---|---|"]
+    for spec in descriptors.VALUES["fields"]:
+        rules = spec.get("constraints", {})
+        allowed = ", ".join(rules["enum"]) if "enum" in rules else \
+            f"id from vocab/{spec['x-foreign']}.csv" if "x-foreign" in spec else \
+            spec["type"] if spec["type"] != "string" else ""
+        lines.append(f"| `{spec['name']}` | {'yes' if rules.get('required') else ''} | {allowed} | "
+                     f"{spec['description']} |")
+    return "\n".join(lines) + "\n"
+
+
 def existing_keys(root: Path) -> dict[str, str]:
     """Citation key → the .bib file (relative) that already holds it: sources.bib and bib_parts/*.bib."""
     from .lint import parse_bibtex

@@ -239,3 +239,80 @@ def test_trace_says_when_parameter_sets_do_not_use_a_quantity(store_path):
     result = trace(open_store(store_path), "human", "hematocrit")
     assert result.combined == [] and "do not use hematocrit" in result.note
     assert list(result.rows["value"]) == [44.0]
+
+
+# --- DEVELOPERS.md stays true ----------------------------------------------------------------------
+
+DEVELOPERS = Path(__file__).parent.parent / "DEVELOPERS.md"
+
+
+def test_developers_column_table_is_generated_from_the_descriptors():
+    from bodyplan.ingest.scaffold import columns_markdown
+
+    text = DEVELOPERS.read_text(encoding="utf-8")
+    table = text.split("<!-- columns:start -->\n")[1].split("<!-- columns:end -->")[0]
+    assert table == columns_markdown()
+
+
+def test_developers_names_only_real_commands():
+    import re
+
+    from bodyplan.cli import COMMANDS
+
+    named = set(re.findall(r"^\$ bodyplan ([a-z]+)", DEVELOPERS.read_text(encoding="utf-8"), re.M))
+    assert named and named <= set(COMMANDS)
+
+
+def _session_steps(text: str) -> list[tuple[str, str, int]]:
+    """(command, printed output, exit status) of every '$ …' line in DEVELOPERS.md's session."""
+    import re
+
+    session = text.split("### The session")[1].split("### What the warnings")[0]
+    steps = []
+    for block in re.findall(r"```\n(.*?)```", session, re.S):
+        for m in re.finditer(r"^\$ ([^\n]+)\n(.*?)^# exit status (\d+)\n", block, re.S | re.M):
+            steps.append((m.group(1), m.group(2), int(m.group(3))))
+    return steps
+
+
+def test_developers_session_replays_exactly(tmp_path, monkeypatch):
+    """Run the curator session of DEVELOPERS.md again and compare every printed line."""
+    import contextlib
+    import io
+    import shlex
+    import subprocess
+
+    from bodyplan.cli import main
+
+    text = DEVELOPERS.read_text(encoding="utf-8")
+    bib = text.split("`testd2003.bib`:\n\n```\n")[1].split("```")[0]
+    rows = text.split("**3. Add the rows**")[1].split("```\n")[1]
+    shutil.copytree(FIXTURE, tmp_path / "data")
+    (tmp_path / "testd2003.bib").write_text(bib)
+    monkeypatch.chdir(tmp_path)
+    steps = _session_steps(text)
+    assert len(steps) >= 15
+    checks = 0
+    for command, expected, status in steps:
+        if command.startswith("bodyplan check"):  # the session's edits between the commands
+            if checks == 0:
+                with open(tmp_path / "data" / "values" / "testd2003.csv", "a") as f:
+                    f.write(rows)
+            else:
+                path = tmp_path / "data" / "values" / "testd2003.csv"
+                path.write_text(path.read_text().replace(",0.085,g,", ",0.085,kg,"))
+            checks += 1
+        argv = shlex.split(command)
+        if argv[0] != "bodyplan":  # cat, ls
+            done = subprocess.run(argv, capture_output=True, text=True)
+            printed, code = done.stdout + done.stderr, done.returncode
+        else:
+            out = io.StringIO()
+            code = 0
+            with contextlib.redirect_stdout(out), contextlib.redirect_stderr(out):
+                try:
+                    main(argv[1:])
+                except SystemExit as exc:
+                    code = exc.code or 0
+            printed = out.getvalue()
+        assert (code, sorted(printed.splitlines())) == (status, sorted(expected.splitlines())), command
