@@ -275,3 +275,25 @@ def test_site_folder_keeps_unrelated_files(tmp_path, store):
     write_site(out, store)
     assert (out / "README.txt").read_text() == "kept"
     assert (out / "plugins" / "bodyplan_site.py").read_text() == plugin_file().read_text()
+
+
+def test_page_cache_keeps_recent_pages_within_its_budget():
+    from bodyplan.site.plugin import PageCache
+
+    cache = PageCache(budget_bytes=800)
+    start = {"type": "http.response.start", "status": 200, "headers": []}
+    cache.put("a", start, b"x" * 90)
+    cache.put("b", start, b"y" * 90)
+    cache.put("too big", start, b"z" * 101)  # over an eighth of the budget: never kept
+    assert cache.get("a")[1] == b"x" * 90 and cache.get("too big") is None
+    for key in "cdefghij":  # 8 more pages of 90 bytes overflow 800 bytes; "b" is the least recently used
+        cache.put(key, start, b"w" * 90)
+    assert cache.get("b") is None and cache.get("j") is not None and cache.size <= 800
+
+
+def test_repeated_page_comes_from_the_cache(store):
+    ds = make_datasette(store)
+    first, second = fetch(ds, ("GET", "/bodyplan/curated_values?_size=5"), ("GET", "/bodyplan/curated_values?_size=5"))
+    assert first.status_code == second.status_code == 200
+    assert "Queries took" in first.text  # a fresh render would print a different time here
+    assert first.content == second.content

@@ -7,6 +7,7 @@ configuration folder that plain `datasette DIR` serves.
 from __future__ import annotations
 
 import importlib
+from collections import OrderedDict
 
 from datasette import Response, hookimpl
 from datasette.utils import tilde_decode, tilde_encode
@@ -106,16 +107,63 @@ def startup(datasette):
     importlib.import_module("datasette.handle_exception").rich = None
 
 
+class PageCache:
+    """Finished 200 responses by URL, least recently used first out. The database is immutable, so a
+    URL's bytes cannot change while this process runs; responses that set a cookie are never kept."""
+
+    def __init__(self, budget_bytes: int):
+        self.budget, self.size, self.entries = budget_bytes, 0, OrderedDict()
+
+    def get(self, key):
+        entry = self.entries.get(key)
+        if entry is not None:
+            self.entries.move_to_end(key)
+        return entry
+
+    def put(self, key, start: dict, body: bytes) -> None:
+        if len(body) > self.budget // 8 or key in self.entries:
+            return
+        self.entries[key] = (start, body)
+        self.size += len(body)
+        while self.size > self.budget:
+            self.size -= len(self.entries.popitem(last=False)[1][1])
+
+
 @hookimpl
 def asgi_wrapper(datasette):
-    """Refuse every method that could write, before any view sees it."""
+    """Refuse every method that could write, before any view sees it; serve repeated GETs from memory."""
+    budget = int((datasette.plugin_config(PLUGIN) or {}).get("page_cache_mb", 64)) * 2**20
+    cache = PageCache(budget) if budget else None
+
     def wrap(app):
         async def read_only(scope, receive, send):
-            if scope["type"] == "http" and scope["method"] not in READ_METHODS:
+            if scope["type"] != "http":
+                return await app(scope, receive, send)
+            if scope["method"] not in READ_METHODS:
                 response = Response.text("This site is read-only.", status=405, headers={"Allow": "GET, HEAD"})
-                await response.asgi_send(send)
-                return
-            await app(scope, receive, send)
+                return await response.asgi_send(send)
+            if cache is None or scope["method"] != "GET":
+                return await app(scope, receive, send)
+            host = next((v for k, v in scope["headers"] if k == b"host"), b"")  # next_url links are absolute
+            key = (host, scope.get("root_path", ""), scope["path"], scope["query_string"])
+            hit = cache.get(key)
+            if hit is not None:
+                await send(hit[0])
+                return await send({"type": "http.response.body", "body": hit[1]})
+            start, chunks, size = {}, [], 0
+
+            async def keep(message):
+                nonlocal size
+                if message["type"] == "http.response.start":
+                    start.update(message)
+                elif size <= budget // 8:
+                    chunks.append(message.get("body", b""))
+                    size += len(chunks[-1])
+                    if not message.get("more_body") and start.get("status") == 200 and not any(
+                            k.lower() == b"set-cookie" for k, _ in start.get("headers", [])):
+                        cache.put(key, dict(start), b"".join(chunks))
+                await send(message)
+            await app(scope, receive, keep)
         return read_only
     return wrap
 
