@@ -3,8 +3,9 @@
 Three views, all plain DataFrames:
 - coverage: one row per species, stage and parameter (the layout's compartments × volume and blood
   flow, plus body mass, cardiac output, GFR, hematocrit), counting the curated rows behind it and
-  saying how it stands (see STATES). Only rows on the compartments the layout names are counted;
-  sub-compartments (stomach for gut) are not, although parameter sets may sum them.
+  saying how it stands (see STATES); a model compartment lumping several stored ones stands as its
+  worst part. Only rows on the compartments the layout names are counted; sub-compartments
+  (stomach for gut) are not, although parameter sets may sum them.
 - readiness: the share of a parameter set's numbers (fill="none") that are not gaps.
 - most_wanted: which single parameter, once curated, closes the most gaps and readies the most species.
 """
@@ -87,7 +88,7 @@ class GapReport:
     stage: str
     parameters: list[Parameter]
     coverage: pd.DataFrame  # species, life_stage, parameter, label, state, level, counts, sources
-    readiness: pd.DataFrame  # species, life_stage, readiness, available, total, gaps
+    readiness: pd.DataFrame  # species, life_stage, readiness, available, total, gaps, supplied, waits_on
     most_wanted: pd.DataFrame  # parameter, species_made_ready, gaps_closed_alone, species_needing, species
     sources: pd.DataFrame  # id, citation of every source behind a covered cell
 
@@ -160,10 +161,16 @@ def coverage_table(store, layout, species: list[str], stage: str) -> tuple[pd.Da
         for p in params:
             both = groups.get((sp, st, p.id), empty)
             sel, gone = both[both["has_value"]], both[~both["has_value"]]
-            state = cell_state(sel)
+            state, lacking = cell_state(sel), []
+            if len(p.compartments) > 1 and len(sel):  # a lumped compartment stands as its worst part
+                by_part = {c: cell_state(sel[sel["compartment_id"] == c]) for c in p.compartments}
+                state = min(by_part.values(), key=STATES.index)
+                lacking = [c for c, s in by_part.items() if s == "absent"]
+            mark = _mark(cell_state(sel), sel) + ("*" if lacking else "")
             records.append({
                 "species": sp, "life_stage": st, "parameter": p.id, "label": p.label, "state": state,
-                "level": STATES.index(state), "mark": _mark(state, sel), "n_values": len(sel),
+                "level": STATES.index(state), "mark": mark, "parts_lacking": ", ".join(lacking),
+                "n_values": len(sel),
                 "n_sources": sel["source_id"].nunique(), "n_verified": int(sel["verified"].sum()),
                 "n_with_uncertainty": int(sel["has_uncertainty"].sum()),
                 "n_absolute": int((~sel["relative"]).sum()), "n_reported_missing": len(gone),
@@ -192,9 +199,13 @@ def readiness_table(store, layout, keys: list[tuple[str, str]]) -> tuple[pd.Data
         gap = table["fill"] == "gap"
         records.append({"species": sp, "life_stage": st, "readiness": round(float((~gap).mean()), 4),
                         "available": int((~gap).sum()), "total": len(table),
-                        "gaps": "; ".join(f"{c} {p}" for c, p in table.loc[gap, ["compartment", "parameter"]]
-                                          .itertuples(index=False))})
+                        "gaps": _names(table[gap]), "supplied": _names(table[~gap])})
     return pd.DataFrame.from_records(records), tables
+
+
+def _names(table: pd.DataFrame) -> str:
+    return "; ".join(p if c == "whole_body" else f"{c} {p}"
+                     for c, p in table[["compartment", "parameter"]].itertuples(index=False))
 
 
 def needed_for(table: pd.DataFrame, cover: dict[str, str], layout, params: list[Parameter]) -> dict:
@@ -234,7 +245,11 @@ def needed_for(table: pd.DataFrame, cover: dict[str, str], layout, params: list[
     return needs
 
 
-def most_wanted_table(tables: dict, coverage: pd.DataFrame, layout, params: list[Parameter]) -> pd.DataFrame:
+def most_wanted_table(tables: dict, coverage: pd.DataFrame, layout,
+                      params: list[Parameter]) -> tuple[pd.DataFrame, dict]:
+    """Per parameter: species it would make ready alone, gaps it closes alone, species that need it.
+    Also returns each (species, stage)'s full list of what it waits on."""
+    waits: dict[tuple[str, str], list[str]] = {}
     counts: dict[str, dict] = {p.id: {"parameter": p.id, "label": p.label, "species_made_ready": 0,
                                       "gaps_closed_alone": 0, "species_needing": 0, "species": []}
                                for p in params if p.model}
@@ -243,6 +258,7 @@ def most_wanted_table(tables: dict, coverage: pd.DataFrame, layout, params: list
         cover = dict(zip(cells["parameter"], cells["state"]))
         needs = needed_for(table, cover, layout, params)
         union = set().union(*needs.values()) if needs else set()
+        waits[(sp, st)] = [p.id for p in params if p.id in union]
         who = sp if st == "adult" else f"{sp} ({st})"
         for pid in union:
             counts[pid]["species_needing"] += 1
@@ -256,7 +272,7 @@ def most_wanted_table(tables: dict, coverage: pd.DataFrame, layout, params: list
     frame["species"] = frame["species"].map(lambda s: ", ".join(sorted(s)))
     frame = frame.sort_values(["species_made_ready", "gaps_closed_alone", "species_needing", "parameter"],
                               ascending=[False, False, False, True], kind="stable")
-    return frame[frame["species_needing"] > 0].reset_index(drop=True)
+    return frame[frame["species_needing"] > 0].reset_index(drop=True), waits
 
 
 def gap_report(store, species=None, stage: str = "adult", layout="whole_body") -> GapReport:
@@ -275,9 +291,10 @@ def gap_report(store, species=None, stage: str = "adult", layout="whole_body") -
     coverage, params = coverage_table(store, lay, species, stage)
     keys = list(dict.fromkeys(zip(coverage["species"], coverage["life_stage"])))
     readiness, tables = readiness_table(store, lay, keys)
-    covered = coverage[coverage["state"] != "absent"].groupby(["species", "life_stage"]).size()
+    covered = coverage[coverage["n_values"] > 0].groupby(["species", "life_stage"]).size()
     readiness["covered_parameters"] = [int(covered.get(k, 0)) for k in keys]
-    most_wanted = most_wanted_table(tables, coverage, lay, params)
+    most_wanted, waits = most_wanted_table(tables, coverage, lay, params)
+    readiness["waits_on"] = [", ".join(waits.get(k, [])) for k in keys]
     ids = sorted({s for text in coverage["sources"] for s in text.split("; ") if s})
     sources = store.frame(f"SELECT id, citation, doi FROM sources WHERE id IN ({', '.join('?' for _ in ids)}) "
                           "ORDER BY id", ids) if ids else pd.DataFrame(columns=["id", "citation", "doi"])

@@ -47,8 +47,10 @@ def gaps_cmd(species, stage, layout, fmt, out, store_path):
         emit(report.coverage, fmt)
     else:
         ranked = report.under_studied.assign(readiness=lambda f: (f["readiness"] * 100).round(0).astype(int))
-        emit(ranked[["rank", "species", "life_stage", "readiness", "available", "total", "covered_parameters"]]
-             .rename(columns={"readiness": "readiness %", "covered_parameters": "parameters with data"}),
+        emit(ranked[["rank", "species", "life_stage", "readiness", "available", "total", "covered_parameters",
+                     "waits_on"]]
+             .rename(columns={"readiness": "readiness %", "covered_parameters": "parameters with data",
+                              "waits_on": "to curate"}),
              fmt, title=f"Readiness ({report.layout} layout), least ready first")
         emit(report.most_wanted[["parameter", "species_made_ready", "gaps_closed_alone", "species_needing"]]
              .head(15), fmt, title="Most wanted: curating this closes the most gaps")

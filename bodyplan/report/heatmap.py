@@ -52,8 +52,8 @@ def heatmap_figure(report: GapReport):
     n_rows, n_cols = states.shape
     colours = state_colours()
 
-    width = 3.2 + 0.42 * n_cols
-    height = 2.6 + 0.27 * n_rows
+    width = 3.4 + 0.40 * n_cols
+    height = 3.7 + 0.3 * n_rows
     fig, ax = plt.subplots(figsize=(width, height), dpi=150)
     for i in range(n_rows):
         for j in range(n_cols):
@@ -62,7 +62,7 @@ def heatmap_figure(report: GapReport):
             ax.add_patch(Rectangle((j, i), 1, 1, facecolor=rgba, edgecolor="0.6", linewidth=0.4,
                                    hatch=HATCH.get(state)))
             if marks.iat[i, j]:
-                ax.text(j + 0.5, i + 0.5, marks.iat[i, j], ha="center", va="center", fontsize=6.5,
+                ax.text(j + 0.5, i + 0.5, marks.iat[i, j], ha="center", va="center", fontsize=7.5,
                         color=_text_colour(rgba),
                         bbox=dict(boxstyle="square,pad=0.05", facecolor=rgba, edgecolor="none")
                         if state in HATCH else None)
@@ -74,28 +74,30 @@ def heatmap_figure(report: GapReport):
     ax.set_xlim(0, n_cols)
     ax.set_ylim(n_rows, 0)
     ax.set_xticks([j + 0.5 for j in range(n_cols)])
-    ax.set_xticklabels(labels, rotation=60, ha="right", rotation_mode="anchor", fontsize=8)
     ax.set_yticks([i + 0.5 for i in range(n_rows)])
-    ax.set_yticklabels(row_labels(report, keys), fontsize=8, family="monospace")
+    ax.set_yticklabels(row_labels(report, keys), fontsize=9.5, family="monospace")
     ax.tick_params(length=0)
     ax.xaxis.tick_top()
-    ax.set_xticklabels(labels, rotation=60, ha="left", rotation_mode="anchor", fontsize=8)
+    ax.set_xticklabels(labels, rotation=60, ha="left", rotation_mode="anchor", fontsize=9.5)
     for side in ax.spines.values():
         side.set_visible(False)
     stage = "all stages" if report.stage == "all" else report.stage
-    fig.suptitle(f"Curated coverage, layout {report.layout}, {stage}  (row label: readiness)", fontsize=10,
+    fig.suptitle(f"Curated coverage, layout {report.layout}, {stage}  (row label: readiness)", fontsize=12,
                  x=0.01, ha="left")
 
     handles = [Patch(facecolor=colours[s], edgecolor="0.4", hatch=HATCH.get(s), label=s) for s in STATES]
-    legend = fig.legend(handles=handles, loc="lower left", ncol=3, fontsize=8, frameon=False,
-                        bbox_to_anchor=(0.01, 0.0), title="cell state", title_fontsize=8, alignment="left")
+    footer = 1.55  # inches below the grid for the legend and the key to the cell text
+    legend = fig.legend(handles=handles, loc="lower left", ncol=6, fontsize=9.5, frameon=False,
+                        bbox_to_anchor=(0.01, 0.78 / height), title="cell state", title_fontsize=9.5,
+                        alignment="left", handlelength=1.6, columnspacing=1.2)
     legend.get_title().set_ha("left")
-    fig.text(0.99, 0.012, "cell text: number of sources; v verified against the source text;\n"
-             "± uncertainty given; f fraction or per-kg form only.\n"
-             "Rows on sub-compartments (stomach for gut) are not counted here;\n"
-             "readiness (share of the parameter set that is not a gap) does use them.",
-             ha="right", va="bottom", fontsize=7.5)
-    fig.tight_layout(rect=(0, 0.9 / height, 1, 1 - 0.35 / height))
+    fig.text(0.012, 0.08 / height,
+             "Cell text: number of sources; v verified against the source text; ± uncertainty given; "
+             "f fraction or per-kg form only;\n* a lumped compartment with a part lacking data (the cell shows "
+             "its worst part). Rows on sub-compartments (stomach for gut)\nare not counted here; readiness "
+             "(share of the parameter set that is not a gap) does use them.",
+             ha="left", va="bottom", fontsize=9, linespacing=1.4)
+    fig.tight_layout(rect=(0, footer / height, 1, 1 - 0.35 / height))
     return fig
 
 

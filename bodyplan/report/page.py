@@ -36,14 +36,24 @@ def _table(frame: pd.DataFrame, columns: dict[str, str], numeric=(), table_id: s
     return f"<table{ident}><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
 
+def _missing(row) -> str:
+    """The shorter of the two lists: the gaps, or what is supplied."""
+    if not row.available:
+        return "all"
+    if row.available < row.total - row.available:
+        return f"all but: {row.supplied}"
+    return row.gaps
+
+
 def gap_report_html(report: GapReport, png: bytes | None = None, store_info: dict | None = None) -> str:
     from .heatmap import write_heatmap
 
     png = write_heatmap(report) if png is None else png
     image = base64.b64encode(png).decode("ascii")
-    ranked = report.under_studied.assign(readiness_pct=lambda f: (f["readiness"] * 100).round(0).astype(int))
+    ranked = report.under_studied.assign(readiness_pct=lambda f: (f["readiness"] * 100).round(0).astype(int),
+                                         missing=lambda f: [_missing(r) for r in f.itertuples()])
     stage = "all stages" if report.stage == "all" else f"life stage {report.stage}"
-    covered = report.coverage[report.coverage["state"] != "absent"].sort_values(["species", "life_stage",
+    covered = report.coverage[report.coverage["n_values"] > 0].sort_values(["species", "life_stage",
                                                                                     "parameter"])
     states = pd.DataFrame([{"state": k, "meaning": v} for k, v in STATE_HELP.items()])
     info = store_info or {}
@@ -64,7 +74,8 @@ def gap_report_html(report: GapReport, png: bytes | None = None, store_info: dic
         "<h2>Under-studied species (least ready first)</h2>",
         _table(ranked, {"rank": "rank", "species": "species", "life_stage": "stage",
                         "readiness_pct": "readiness %", "available": "available", "total": "of",
-                        "covered_parameters": "parameters with any data", "gaps": "gaps"},
+                        "covered_parameters": "parameters with any data", "missing": "gaps",
+                        "waits_on": "to curate (see Most wanted)"},
                numeric={"rank", "readiness_pct", "available", "total", "covered_parameters"},
                table_id="under-studied"),
         "<h2>Most wanted</h2>",
@@ -79,7 +90,8 @@ def gap_report_html(report: GapReport, png: bytes | None = None, store_info: dic
         "<h2>Sources behind each covered cell</h2>",
         _table(covered, {"species": "species", "life_stage": "stage", "parameter": "parameter", "state": "state",
                          "n_values": "values", "n_absolute": "absolute", "n_verified": "verified",
-                         "n_with_uncertainty": "with uncertainty", "sources": "sources"},
+                         "n_with_uncertainty": "with uncertainty", "parts_lacking": "parts lacking data",
+                         "sources": "sources"},
                numeric={"n_values", "n_absolute", "n_verified", "n_with_uncertainty"}, table_id="cells"),
         "<h2>Sources</h2>",
         _table(report.sources, {"id": "id", "citation": "citation", "doi": "DOI"}, table_id="sources"),
