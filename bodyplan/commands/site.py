@@ -17,7 +17,6 @@ from ..output import store_option
 def serve_cmd(host, port, access_log, store_path):
     """Serve the store read-only in the browser: values with provenance, facets and named queries."""
     import asyncio
-    import logging
 
     import uvicorn
 
@@ -27,8 +26,8 @@ def serve_cmd(host, port, access_log, store_path):
     ds = make_datasette(locate_store(store_path))
     asyncio.run(ds.invoke_startup())
     click.echo(f"serving {ds.get_database('bodyplan').path} read-only at http://{host}:{port}/", err=True)
-    # uvicorn prints a traceback per dropped connection at "error"; the site itself cannot fail on a write
-    logging.getLogger("uvicorn.error").setLevel(logging.WARNING)
+    # warnings and errors only: a request log line per page (and datasette's traceback per 404, which the
+    # plugin switches off) would bury real problems
     uvicorn.run(ds.app(), host=host, port=port, log_level="warning", access_log=access_log, lifespan="on",
                 workers=1)
 

@@ -1,4 +1,5 @@
-"""The site's datasette plugin: values shown with uncertainty, unit and source; source pages with citation.
+"""The site's datasette plugin: values shown with uncertainty, unit and source; source pages with citation;
+every write method refused; repeated pages served from memory.
 
 It imports only datasette and the standard library, so `bodyplan site` can copy this file into a
 configuration folder that plain `datasette DIR` serves.
@@ -14,7 +15,7 @@ from datasette.utils import tilde_decode, tilde_encode
 from markupsafe import Markup, escape
 
 PLUGIN = "bodyplan-site"
-SPREAD_WORDS = {"sd": "sd", "se": "se"}
+SPREADS = ("sd", "se")  # shown as value ± spread
 LINKED = {"source_id": "sources", "species_id": "species", "life_stage_id": "life_stages",  # curated_values
           "compartment_id": "compartments", "quantity_id": "quantities"}
 QUERY_LINKS = {"value_id": "curated_values", "source": "sources", "species": "species",  # named queries
@@ -46,9 +47,9 @@ def describe_value(row) -> str | None:
     unit = _unit(_get(row, "unit"))
     kind, spread, low, high, n = (_get(row, k) for k in ("uncertainty", "spread", "low", "high", "n"))
     notes = []
-    if kind in SPREAD_WORDS and spread is not None:
+    if kind in SPREADS and spread is not None:
         text = f"{_num(value)} ± {_num(spread)}{unit}"
-        notes.append(SPREAD_WORDS[kind])
+        notes.append(kind)
     else:
         text = f"{_num(value)}{unit}"
         if kind == "cv" and spread is not None:
