@@ -81,8 +81,9 @@ def trace(store, species: str, quantity: str, compartment: str | None = None, *,
     store.require("quantities", quantity, "quantity")
     if compartment is not None:
         store.require("compartments", compartment, "compartment")
+    sexes = None if sex is None else [sex, "mixed", "unknown"]  # as a parameter set of one sex reads them
     frame = store.values(species=species, life_stage=life_stage, quantity=quantity, compartment=compartment,
-                         sex=sex)
+                         sex=sexes)
     rows = frame[ROW_COLUMNS].reset_index(drop=True)
     result = Trace(species, life_stage, quantity, compartment, sex, rows)
     if frame.empty:

@@ -232,6 +232,19 @@ def test_trace_numbers_are_the_parameter_sets(store_path):
     assert co["se"] * 70 == pytest.approx(human.cardiac_output.se, rel=1e-12)
 
 
+def test_trace_of_one_sex_keeps_mixed_rows_like_the_parameter_set(store_path):
+    from bodyplan.api import open_store
+    from bodyplan.api.trace import trace
+
+    store = open_store(store_path)
+    result = trace(store, "dog", "tissue_mass", "liver", sex="male")
+    assert list(result.rows["source"]) == ["testa2000", "testb2001", "testc2002"]  # male and mixed rows
+    assert trace(store, "dog", "tissue_mass", "liver", sex="female").rows["source"].tolist() == [
+        "testa2000", "testc2002"]
+    [combined] = result.combined
+    assert [r["source"] for r in combined["rows_used"]] == ["testa2000", "testb2001", "testc2002"]
+
+
 def test_trace_says_when_parameter_sets_do_not_use_a_quantity(store_path):
     from bodyplan.api import open_store
     from bodyplan.api.trace import trace

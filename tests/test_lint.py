@@ -167,3 +167,35 @@ def test_lint_is_idempotent_and_lossless(generated):
         assert float(r["value"]) == float(src["value"].replace(" ", ""))
         assert r["comment"] == src["comment"].strip()
         assert r["value"].lstrip("-").lstrip("0").rstrip("0") in src["value"].replace(" ", "")
+
+
+bib_text = st.text(st.sampled_from(list("abcXYZ019 .,:;-()'/&")), min_size=1, max_size=20).filter(str.strip)
+
+
+@st.composite
+def bib_files(draw):
+    keys = draw(st.lists(st.from_regex(r"[a-z][a-z0-9_]{0,7}", fullmatch=True), min_size=1, max_size=5,
+                         unique=True))
+    entries = []
+    for key in keys:
+        names = draw(st.lists(st.sampled_from(["author", "title", "journal", "year", "pages", "note"]),
+                              min_size=1, max_size=5, unique=True))
+        fields = ",\n".join(f"  {draw(st.sampled_from([n, n.upper(), n.title()]))} = {{{draw(bib_text)}}}"
+                            for n in names)
+        kind = draw(st.sampled_from(["article", "Book", "MISC"]))
+        entries.append(f"@{kind}{{{key},\n{fields}{draw(st.sampled_from(['', ',']))}\n}}")
+    return draw(st.sampled_from(["\n", "\n\n"])).join(entries) + "\n", keys
+
+
+@settings(max_examples=60, deadline=None)
+@given(bib_files())
+def test_bibtex_lint_is_idempotent_and_keeps_fields(generated):
+    from bodyplan.ingest.lint import parse_bibtex
+
+    raw, keys = generated
+    once = canonical_bibtex(raw.encode(), "sources.bib")
+    assert canonical_bibtex(once.encode(), "sources.bib") == once
+    before, after = parse_bibtex(raw), parse_bibtex(once)
+    assert [e.key for e in after.entries] == sorted(keys, key=natural_key)
+    fields = {e.key: {f.key.lower(): " ".join(str(f.value).split()) for f in e.fields} for e in before.entries}
+    assert {e.key: {f.key: f.value for f in e.fields} for e in after.entries} == fields

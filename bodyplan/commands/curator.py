@@ -110,7 +110,7 @@ def _combination_line(c: dict) -> str:
 @click.argument("quantity")
 @click.argument("compartment", required=False)
 @click.option("--stage", "life_stage", default="adult", show_default=True, help="Life stage id.")
-@click.option("--sex", default=None, help="Only rows of this sex (male, female, mixed, unknown).")
+@click.option("--sex", default=None, help="Rows of this sex plus mixed and unknown ones, as a parameter set of that sex uses them.")
 @format_option()
 @store_option
 def trace_cmd(species, quantity, compartment, life_stage, sex, fmt, store_path):
