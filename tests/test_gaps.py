@@ -9,6 +9,7 @@ from __future__ import annotations
 import base64
 import io
 import json
+import re
 import shutil
 from html.parser import HTMLParser
 
@@ -248,8 +249,12 @@ def test_html_report_is_self_contained_and_complete(store, report, tmp_path):
 
     path = tmp_path / "gaps.html"
     write_gap_report_html(report, path, store.info())
+    text = path.read_text(encoding="utf-8")
     parser = _Collector()
-    parser.feed(path.read_text(encoding="utf-8"))
+    parser.feed(text)
+    # every link from a cell to a source lands on that source's row
+    targets = set(re.findall(r'href="#(src-[a-z0-9_]+)"', text))
+    assert targets and targets <= set(re.findall(r'<tr id="(src-[a-z0-9_]+)"', text))
     # one embedded PNG, nothing fetched from elsewhere
     assert len(parser.images) == 1 and parser.images[0].startswith("data:image/png;base64,")
     assert base64.b64decode(parser.images[0].split(",", 1)[1])[:4] == b"\x89PNG"

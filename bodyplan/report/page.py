@@ -21,7 +21,18 @@ img { max-width: 100%; height: auto; border: 1px solid #ddd; }
 """
 
 
-def _table(frame: pd.DataFrame, columns: dict[str, str], numeric=(), table_id: str = "") -> str:
+def _source_links(text: str) -> str:
+    return "; ".join(f'<a href="#src-{escape(s)}">{escape(s)}</a>' for s in text.split("; ") if s)
+
+
+def _doi_link(doi: str) -> str:
+    return f'<a href="https://doi.org/{escape(doi)}">{escape(doi)}</a>'
+
+
+def _table(frame: pd.DataFrame, columns: dict[str, str], numeric=(), table_id: str = "", html=None,
+           row_id=None) -> str:
+    """An HTML table; ``html`` maps a column to a function giving its cell's markup from the value."""
+    html = html or {}
     head = "".join(f"<th>{escape(label)}</th>" for label in columns.values())
     body = []
     for row in frame.itertuples(index=False):
@@ -30,8 +41,9 @@ def _table(frame: pd.DataFrame, columns: dict[str, str], numeric=(), table_id: s
             value = getattr(row, col)
             text = "" if value is None or (isinstance(value, float) and pd.isna(value)) else str(value)
             cls = ' class="num"' if col in numeric else ""
-            cells.append(f"<td{cls}>{escape(text)}</td>")
-        body.append("<tr>" + "".join(cells) + "</tr>")
+            cells.append(f"<td{cls}>{html[col](text) if col in html and text else escape(text)}</td>")
+        ident = f' id="{escape(row_id(row))}"' if row_id else ""
+        body.append(f"<tr{ident}>" + "".join(cells) + "</tr>")
     ident = f' id="{table_id}"' if table_id else ""
     return f"<table{ident}><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
@@ -92,9 +104,11 @@ def gap_report_html(report: GapReport, png: bytes | None = None, store_info: dic
                          "n_values": "values", "n_absolute": "absolute", "n_verified": "verified",
                          "n_with_uncertainty": "with uncertainty", "parts_lacking": "parts lacking data",
                          "sources": "sources"},
-               numeric={"n_values", "n_absolute", "n_verified", "n_with_uncertainty"}, table_id="cells"),
+               numeric={"n_values", "n_absolute", "n_verified", "n_with_uncertainty"}, table_id="cells",
+               html={"sources": _source_links}),
         "<h2>Sources</h2>",
-        _table(report.sources, {"id": "id", "citation": "citation", "doi": "DOI"}, table_id="sources"),
+        _table(report.sources, {"id": "id", "citation": "citation", "doi": "DOI"}, table_id="sources",
+               html={"doi": _doi_link}, row_id=lambda row: f"src-{row.id}"),
         "</body></html>",
     ]
     return "\n".join(parts) + "\n"
