@@ -15,7 +15,8 @@ from pathlib import Path
 
 from ..schema import descriptors
 
-TABLES = ["species", "life_stages", "compartments", "quantities", "sources", "curated_values", "build_info"]
+TABLES = ["species", "life_stages", "compartments", "quantities", "sources", "curated_values", "build_info",
+          "input_files"]
 FORMATS = ["csv", "json", "parquet"]
 SQL_TYPES = {"INTEGER": "integer", "FLOAT": "number", "REAL": "number", "BOOLEAN": "boolean"}
 DROPPED = {"curated_values": {"id"}}  # the store's row number: identity is (source_id, row_id)
@@ -43,11 +44,12 @@ FOREIGN = {
                        ("compartment_id", "compartments"), ("quantity_id", "quantities")],
     "compartments": [("part_of", "compartments")],
 }
-PRIMARY = {"curated_values": ["source_id", "row_id"], "build_info": ["key"]}
+PRIMARY = {"curated_values": ["source_id", "row_id"], "build_info": ["key"], "input_files": ["path"]}
 TABLE_DESCRIPTIONS = {
     "sources": "Sources: one BibTeX entry per curated file, with a formatted citation.",
     "curated_values": "Curated values: one row per value printed in a source, as reported and in canonical units.",
     "build_info": "How the store was built: content hash, bodyplan version, hash of the input files.",
+    "input_files": "The curated files the store was built from, with their SHA-256.",
 }
 
 

@@ -139,7 +139,7 @@ def test_export_csv_package_validates_with_frictionless(base_store, tmp_path):
     report = frictionless.validate(str(descriptor))  # descriptor, every row against its schema, foreign keys
     assert report.valid, report.flatten(["title", "message"])[:5]
     rows = {task.name: task.stats["rows"] for task in report.tasks}
-    assert rows["curated_values"] == 17 and rows["species"] == 3
+    assert rows["curated_values"] == 17 and rows["species"] == 3 and rows["input_files"] == 8
 
 
 def test_export_json_descriptor_is_valid(base_store, tmp_path):
