@@ -160,6 +160,9 @@ def test_cli_allometry_json_prediction_and_plot(toy_store, tmp_path):
                                      "--store", str(toy_store.path)])
     assert table.exit_code == 0, table.output
     assert "0.025 kg" in table.output and "one of the fitted points" in table.output
+    co = CliRunner().invoke(cli, ["allometry", "cardiac_output", "--store", str(toy_store.path)])
+    assert co.exit_code == 0 and "Rows left out" in co.output
+    assert "no body mass stored for cattle" in co.output and "per body surface" in co.output
     missing = CliRunner().invoke(cli, ["allometry", "cardiac_output", "--predict", "cattle",
                                        "--store", str(toy_store.path)])
     assert missing.exit_code != 0

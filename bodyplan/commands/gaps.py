@@ -107,7 +107,7 @@ def allometry_cmd(quantity, compartment, stage, taxon_class, fmt, out, predict_s
                "b": f"{fit.b:.4f} (95 % CI {fit.b_ci[0]:.4f}–{fit.b_ci[1]:.4f})",
                "R²": f"{fit.r2:.4f}", "n species": fit.n, "residual sd (log10)": f"{fit.residual_sd:.4f}",
                "outside the 95 % prediction interval": ", ".join(fit.outliers()) or "none",
-               "rows left out": f"{len(result.skipped)} (see --format json)"}
+               "rows left out": f"{len(result.skipped)} (listed below)" if len(result.skipped) else "none"}
     if prediction:
         who = predict_species or "a new species"
         summary[f"predicted for {who} at {prediction['body_mass_kg']:.4g} kg"] = (
@@ -117,6 +117,11 @@ def allometry_cmd(quantity, compartment, stage, taxon_class, fmt, out, predict_s
             summary["note"] = prediction["note"]
         summary["caution"] = CAUTION
     emit(summary, fmt, title="Fit")
+    if len(result.skipped):
+        left = (result.skipped.groupby(["species", "reason"], sort=True)
+                .agg(rows=("row_id", "size"), sources=("source", lambda s: "; ".join(dict.fromkeys(s))))
+                .reset_index())
+        emit(left, fmt, title="Rows left out of the fit")
 
 
 def _prediction(store, result, species, body_weight, stage) -> dict:
