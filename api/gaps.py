@@ -26,12 +26,6 @@ STATE_HELP = {
     "verified": "one source with uncertainty, checked against the source text",
     "several sources": "absolute values from two or more sources",
 }
-WHOLE_BODY = {  # parameter → (compartment, quantity); hematocrit is a fraction by nature, never relative
-    "body_mass": ("whole_body", "body_mass"),
-    "cardiac_output": ("whole_body", "cardiac_output"),
-    "gfr": ("whole_body", "gfr"),
-    "hematocrit": ("blood", "hematocrit"),
-}
 VOLUME_QUANTITIES = ["tissue_volume", "tissue_mass", "tissue_mass_fraction"]
 FLUID_VOLUMES = {"blood": "blood_volume", "plasma": "plasma_volume"}
 FLOW_QUANTITIES = ["blood_flow", "blood_flow_fraction"]
@@ -88,7 +82,8 @@ class GapReport:
     stage: str
     parameters: list[Parameter]
     coverage: pd.DataFrame  # species, life_stage, parameter, label, state, level, counts, sources
-    readiness: pd.DataFrame  # species, life_stage, readiness, available, total, gaps, supplied, waits_on
+    readiness: pd.DataFrame  # species, life_stage, readiness, available, total, gaps, supplied,
+    #                          covered_parameters (cells with any row), waits_on
     most_wanted: pd.DataFrame  # parameter, species_made_ready, gaps_closed_alone, species_needing, species
     sources: pd.DataFrame  # id, citation of every source behind a covered cell
 
@@ -126,8 +121,8 @@ def _rows(store, species: list[str] | None) -> pd.DataFrame:
     rows["has_value"] = rows["has_value"].astype(bool)
     rows["verified"] = rows["verified"].astype(bool)
     rows["has_uncertainty"] = rows["uncertainty"] != "none"
-    rows["relative"] = rows["quantity_id"].isin(RELATIVE_QUANTITIES) | (
-        (rows["normalisation"] != "none") & (rows["quantity_id"] != "hematocrit"))
+    # relative: needs a body mass, cardiac output or body surface to become the model's number
+    rows["relative"] = rows["quantity_id"].isin(RELATIVE_QUANTITIES) | (rows["normalisation"] != "none")
     return rows
 
 
