@@ -21,10 +21,10 @@ STATES = ["absent", "fraction only", "no uncertainty", "unverified", "verified",
 STATE_HELP = {
     "absent": "no curated value (a source may report it as missing)",
     "fraction only": "only relative forms (per body mass, % of cardiac output, per m²); no absolute value",
-    "no uncertainty": "one source, absolute value, no sd/se/range given",
-    "unverified": "one source with uncertainty; not checked against the source text",
-    "verified": "one source with uncertainty, checked against the source text",
-    "several sources": "absolute values from two or more sources",
+    "no uncertainty": "one source with an absolute value; no sd/se/range given",
+    "unverified": "one source with an absolute value and uncertainty; not checked against the source text",
+    "verified": "one source with an absolute value and uncertainty, checked against the source text",
+    "several sources": "two or more sources, at least one with an absolute value",
 }
 VOLUME_QUANTITIES = ["tissue_volume", "tissue_mass", "tissue_mass_fraction"]
 FLUID_VOLUMES = {"blood": "blood_volume", "plasma": "plasma_volume"}
@@ -66,14 +66,14 @@ def cell_state(rows: pd.DataFrame) -> str:
     """How one species' rows for one parameter stand (rows with a value only)."""
     if not len(rows):
         return "absent"
-    absolute = rows[~rows["relative"]]
-    if not len(absolute):
+    if rows["relative"].all():
         return "fraction only"
-    if absolute["source_id"].nunique() >= 2:
+    # with an absolute value in hand, every row counts (a per-kg row may carry the only sd)
+    if rows["source_id"].nunique() >= 2:
         return "several sources"
-    if not absolute["has_uncertainty"].any():
+    if not rows["has_uncertainty"].any():
         return "no uncertainty"
-    return "verified" if absolute["verified"].any() else "unverified"
+    return "verified" if rows["verified"].any() else "unverified"
 
 
 @dataclass

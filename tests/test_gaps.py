@@ -52,18 +52,16 @@ def sql_count(store, species, stage, compartments, quantities):
 def sql_state(store, species, stage, compartment, quantities):
     """A cell's state straight from SQL, written apart from the report's own code."""
     marks = ", ".join("?" for _ in quantities)
-    absolute = ("quantity_id NOT IN ('tissue_mass_fraction', 'blood_flow_fraction') "
-                "AND (normalisation = 'none' OR quantity_id = 'hematocrit')")
+    absolute = "quantity_id NOT IN ('tissue_mass_fraction', 'blood_flow_fraction') AND normalisation = 'none'"
     base = (f"FROM curated_values WHERE species_id = ? AND life_stage_id = ? AND compartment_id = ? "
             f"AND quantity_id IN ({marks}) AND value IS NOT NULL")
     args = (species, stage, compartment, *quantities)
     if not store.conn.execute(f"SELECT count(*) {base}", args).fetchone()[0]:
         return "absent"
-    n_src, n_unc, n_ver = store.conn.execute(
-        f"SELECT count(DISTINCT source_id), sum(uncertainty <> 'none'), sum(verified) {base} AND {absolute}",
-        args).fetchone()
-    if not n_src:
+    if not store.conn.execute(f"SELECT count(*) {base} AND {absolute}", args).fetchone()[0]:
         return "fraction only"
+    n_src, n_unc, n_ver = store.conn.execute(
+        f"SELECT count(DISTINCT source_id), sum(uncertainty <> 'none'), sum(verified) {base}", args).fetchone()
     if n_src >= 2:
         return "several sources"
     if not n_unc:
