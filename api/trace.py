@@ -25,7 +25,7 @@ class Trace:
     quantity: str
     compartment: str | None
     sex: str | None
-    rows: pd.DataFrame
+    rows: pd.DataFrame  # with a column "used" (whether the parameter set used the row) once combined
     combined: list[dict] = field(default_factory=list)  # the parameter set's resolution, one per compartment
     note: str | None = None  # why no combination could be shown
 
@@ -104,6 +104,8 @@ def trace(store, species: str, quantity: str, compartment: str | None = None, *,
     for place in places:
         resolved = resolve(store, species, place, parameter, life_stage=life_stage, sex=sex)
         result.combined.append(combination(place, parameter, unit, resolved))
+    used = {(r["source"], r["row_id"]) for c in result.combined for r in c["rows_used"]}
+    result.rows["used"] = [(s, r) in used for s, r in zip(result.rows["source"], result.rows["row_id"])]
     return result
 
 

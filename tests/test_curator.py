@@ -223,6 +223,8 @@ def test_trace_numbers_are_the_parameter_sets(store_path):
         assert entry["value"] * bw == pytest.approx(cell.value, rel=1e-12)
         assert entry["method"] == cell.method
         assert tuple(entry["sources"]) == cell.sources
+    rows = trace(store, "dog", "tissue_mass_fraction").rows  # the masses are the more direct route
+    assert list(rows["used"]) == [False, False, False]
     assert [r["at"] for r in combined["liver"]["rows_used"]] == [
         "values/testa2000.csv:7", "values/testb2001.csv:5", "values/testc2002.csv:6"]
 

@@ -50,7 +50,7 @@ def add_cmd(citekey, data_dir, bibtex):
 @click.option("--check", "check_only", is_flag=True,
               help="Only report files that are not in canonical form (exit 1 if any); write nothing.")
 def lint_cmd(data_dir, check_only):
-    """Rewrite curated files in canonical form (sorted, trimmed, minimal quoting, UTF-8, LF)."""
+    """Rewrite the curated files of DATA_DIR (default: the bundled data_curated) in canonical form."""
     from ..ingest.lint import lint_tree
 
     root = _data_dir(data_dir)
@@ -88,9 +88,11 @@ def _trace_table(rows):
             else "(missing; see --format json)", "uncertainty": spread(r), "n": _num(r["n"]),
             "canonical": f"{_num(r['value_canonical'])} {r['unit_canonical']}" if pd.notna(r["value_canonical"])
             else "", "sd (canonical)": _num(r["sd_canonical"]), "verified": "yes" if r["verified"] else "no",
+            "used": ("yes" if r["used"] else "no") if "used" in r else "",
             "at": f"{r['file']}:{r['line']}"} for r in rows.to_dict("records")]
-    return pd.DataFrame(out, columns=["compartment", "source", "locator", "row", "sex", "reported", "uncertainty",
-                                      "n", "canonical", "sd (canonical)", "verified", "at"])
+    columns = ["compartment", "source", "locator", "row", "sex", "reported", "uncertainty", "n", "canonical",
+               "sd (canonical)", "verified", "used", "at"]
+    return pd.DataFrame(out, columns=columns if "used" in rows else [c for c in columns if c != "used"])
 
 
 def _combination_line(c: dict) -> str:
