@@ -51,15 +51,6 @@ PARAMETERS = {  # curated quantity → the parameter-set parameter its rows feed
 }
 
 
-def _resolver():
-    """The parameter set's own resolution, so trace shows exactly the numbers a parameter set uses."""
-    try:
-        from .parameters import resolve_parameter
-    except ImportError:
-        return None
-    return resolve_parameter
-
-
 def _plain(x):
     if isinstance(x, float) and math.isnan(x):
         return None
@@ -93,16 +84,13 @@ def trace(store, species: str, quantity: str, compartment: str | None = None, *,
     if quantity not in PARAMETERS:
         result.note = f"parameter sets do not use {quantity}; the rows are shown uncombined"
         return result
-    resolve = _resolver()
-    if resolve is None:
-        result.note = ("the parameter set's resolution (bodyplan.api.parameters.resolve_parameter) is not in this "
-                       "version; the rows are shown uncombined")
-        return result
+    from .parameters import resolve_parameter  # the parameter set's own rules, so the numbers are its numbers
+
     parameter, unit = PARAMETERS[quantity]
     places = ["whole_body"] if parameter in ("cardiac_output", "body_weight") else \
         sorted(set(frame["compartment"]) if compartment is None else {compartment})
     for place in places:
-        resolved = resolve(store, species, place, parameter, life_stage=life_stage, sex=sex)
+        resolved = resolve_parameter(store, species, place, parameter, life_stage=life_stage, sex=sex)
         result.combined.append(combination(place, parameter, unit, resolved))
     used = {(r["source"], r["row_id"]) for c in result.combined for r in c["rows_used"]}
     result.rows["used"] = [(s, r) in used for s, r in zip(result.rows["source"], result.rows["row_id"])]

@@ -206,9 +206,6 @@ def test_trace_unknown_id_is_one_clean_error(store_path):
 
 
 def test_trace_numbers_are_the_parameter_sets(store_path):
-    parameters = pytest.importorskip("bodyplan.api.parameters")
-    if not hasattr(parameters, "resolve_parameter"):
-        pytest.skip("bodyplan.api.parameters.resolve_parameter is not in this version")
     from bodyplan.api import open_store
     from bodyplan.api.trace import trace
 
@@ -245,6 +242,15 @@ def test_trace_of_one_sex_keeps_mixed_rows_like_the_parameter_set(store_path):
         "testa2000", "testc2002"]
     [combined] = result.combined
     assert [r["source"] for r in combined["rows_used"]] == ["testa2000", "testb2001", "testc2002"]
+
+
+def test_trace_of_nothing_is_a_gap(store_path):
+    from bodyplan.api import open_store
+    from bodyplan.api.trace import trace
+
+    result = trace(open_store(store_path), "rat", "tissue_mass", "heart")
+    assert result.rows.empty and result.combined == []
+    assert result.note == "no curated rows for rat adult tissue_mass in heart: a gap"
 
 
 def test_trace_says_when_parameter_sets_do_not_use_a_quantity(store_path):
