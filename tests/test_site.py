@@ -297,3 +297,31 @@ def test_repeated_page_comes_from_the_cache(store):
     assert first.status_code == second.status_code == 200
     assert "Queries took" in first.text  # a fresh render would print a different time here
     assert first.content == second.content
+
+
+def test_coverage_page_links_each_cell_to_its_values(store):
+    """/coverage: every species appears; a cell's count equals the rows its link opens, and SQL's count."""
+    import re
+    import sqlite3
+    from html import unescape
+
+    ds = make_datasette(store)
+    page = get(ds, "/coverage?stage=adult")
+    assert page.status_code == 200
+    conn = sqlite3.connect(store)
+    names = [r[0] for r in conn.execute("SELECT common_name FROM species")]
+    assert all(f">{name}<" in page.text for name in names)
+    links = re.findall(r'href="(/bodyplan/curated_values\?[^"]+)">(\d+)</a>', page.text)
+    assert links, "no covered cell"
+    for href, count in links[::max(1, len(links) // 12)]:
+        href = unescape(href)
+        rows = get(ds, href.replace("/curated_values?", "/curated_values.json?") + "&_shape=array&_size=max").json()
+        assert len(rows) == int(count)
+        args = dict(p.split("=", 1) for p in href.split("?", 1)[1].split("&"))
+        quantities = args["quantity_id__in"].split(",")
+        expected = conn.execute(
+            f"SELECT count(*) FROM curated_values WHERE species_id = ? AND life_stage_id = ? AND compartment_id = ? "
+            f"AND quantity_id IN ({','.join('?' * len(quantities))}) AND value IS NOT NULL",
+            [args["species_id"], args["life_stage_id"], args["compartment_id"], *quantities]).fetchone()[0]
+        assert expected == int(count)
+    assert 'class="gap"' in page.text

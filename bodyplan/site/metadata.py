@@ -179,7 +179,9 @@ def build_metadata(store: str | Path) -> dict:
             f"<p class=\"bodyplan-caution\"><strong>Caution:</strong> {CAUTION}</p>"
             "<p>Start with <a href=\"/bodyplan/curated_values\">curated values</a> (facet by species, "
             "stage, compartment, quantity, basis, verified) or a named query (parameter set, one parameter "
-            "across species, coverage and gaps) on <a href=\"/bodyplan\">the store's page</a>.</p>"),
+            "across species, coverage and gaps) on <a href=\"/bodyplan\">the store's page</a>. "
+            "<a href=\"/coverage\">Coverage</a> shows, species by species, which parameters have values and "
+            "links each cell to them.</p>"),
         databases={DATABASE: dict(common, description="The bodyplan store: vocabularies, sources and values.",
                                   tables=table_meta, queries=QUERIES)},
         plugins={PLUGIN: {"caution": CAUTION, "unit_words": unit_words}},

@@ -173,6 +173,8 @@ def asgi_wrapper(datasette):
 def extra_template_vars(template, database, table, view_name, request, datasette):
     config = datasette.plugin_config(PLUGIN) or {}
     extra = {"bodyplan_caution": config.get("caution", "")}
+    if view_name == "page" and request is not None and request.path.rstrip("/") == "/coverage":
+        return _coverage_vars(datasette, request, extra)
     if view_name != "row" or table not in ("sources", "curated_values") or request is None:
         return extra
     key = tilde_decode(request.url_vars.get("pks", ""))
@@ -207,3 +209,29 @@ def extra_template_vars(template, database, table, view_name, request, datasette
                     bodyplan_source_values=values)
 
     return source_page if table == "sources" else value_page
+
+
+COVERAGE_SQL = """
+SELECT species_id, compartment_id,
+       CASE WHEN quantity_id IN ('tissue_mass', 'tissue_mass_fraction', 'tissue_volume', 'blood_volume')
+            THEN 'volume' WHEN quantity_id IN ('blood_flow', 'blood_flow_fraction') THEN 'flow'
+            ELSE quantity_id END AS param,
+       count(*) AS n, sum(verified) AS n_verified, count(DISTINCT source_id) AS n_sources
+FROM curated_values WHERE life_stage_id = ? AND value IS NOT NULL GROUP BY 1, 2, 3
+"""
+
+
+def _coverage_vars(datasette, request, extra):
+    """The coverage page's matrix: rows per species × parameter for one life stage."""
+
+    async def coverage():
+        db = datasette.get_database("bodyplan")
+        stage = request.args.get("stage", "adult")
+        cells = {f"{r['species_id']}|{r['compartment_id']}|{r['param']}": dict(r)
+                 for r in (await db.execute(COVERAGE_SQL, [stage])).rows}
+        species = [dict(r) for r in (await db.execute("SELECT id, common_name FROM species ORDER BY id")).rows]
+        stages = [r["id"] for r in (await db.execute("SELECT id FROM life_stages ORDER BY id")).rows]
+        return dict(extra, coverage_cells=cells, coverage_species=species, coverage_stages=stages,
+                    coverage_stage=stage, values_url=datasette.urls.table("bodyplan", "curated_values"))
+
+    return coverage
