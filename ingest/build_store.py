@@ -40,18 +40,24 @@ def check(root: str | Path) -> tuple[Findings, CuratedTree, pd.DataFrame]:
     return findings, tree, frame
 
 
+def _plain(text: str) -> str:
+    """BibTeX's protective braces removed, for text shown to people."""
+    return text.replace("{", "").replace("}", "")
+
+
 def format_citation(fields: dict) -> str:
     authors = [a.strip() for a in fields.get("author", "").replace("\n", " ").split(" and ") if a.strip()]
-    surnames = [a.split(",")[0].strip() if "," in a else a.split()[-1] for a in authors]
+    surnames = [a.strip("{}") if a.startswith("{") and a.endswith("}") and "," not in a  # an organisation
+                else a.split(",")[0].strip() if "," in a else a.split()[-1] for a in authors]
     who = (surnames[0] + " et al." if len(surnames) > 2 else " & ".join(surnames)) or \
         fields.get("organization", fields.get("publisher", "Anonymous"))
-    where = fields.get("journal") or fields.get("booktitle") or fields.get("publisher") or ""
+    where = _plain(fields.get("journal") or fields.get("booktitle") or fields.get("publisher") or "")
     detail = where
     if fields.get("volume"):
         detail += f" {fields['volume']}"
     if fields.get("pages"):
         detail += f":{fields['pages'].replace('--', '–')}"
-    title = fields.get("title", "").strip("{}").rstrip(".")
+    title = _plain(fields.get("title", "")).rstrip(".")
     text = f"{who} ({fields.get('year', 'n.d.')}). {title}. {detail}".strip()
     return text.rstrip(".") + "."
 
@@ -69,27 +75,36 @@ def _vocab_rows(frame: pd.DataFrame, columns: list[str]) -> list[tuple]:
             for row in frame[columns].itertuples(index=False)]
 
 
+def _text(column: pd.Series) -> list:
+    """Cells (stripped when read) as a list, empty ones as None."""
+    cells = column.to_numpy(dtype=object)
+    cells[cells == ""] = None
+    return cells.tolist()
+
+
 def _value_rows(frame: pd.DataFrame) -> list[tuple]:
     frame = frame.sort_values(["_source", "_line"])
-    strip = {c: frame[c].str.strip().replace("", None) for c in
+    strip = {c: _text(frame[c]) for c in
              ("id", "species", "life_stage", "age", "sex", "strain", "compartment", "quantity", "unit",
               "uncertainty", "basis", "locator", "missing_reason", "comment")}
 
-    def num(col):
-        arr = frame[col].to_numpy(dtype=float)
-        return [None if np.isnan(v) else float(v) for v in arr]
+    def num(col):  # NaN to None, -0.0 to 0.0: the values exactly as SQLite gives them back
+        arr = frame[col].to_numpy(dtype=float) + 0.0
+        cells = arr.astype(object)
+        cells[np.isnan(arr)] = None
+        return cells.tolist()
 
     n = [None if np.isnan(v) else int(v) for v in frame["_n"].to_numpy(dtype=float)]
     columns = [
-        frame["_source"].tolist(), strip["id"].tolist(), strip["species"].tolist(), strip["life_stage"].tolist(),
-        strip["age"].tolist(), num("_age_days"), strip["sex"].tolist(), strip["strain"].tolist(),
-        strip["compartment"].tolist(), strip["quantity"].tolist(), frame["_kind"].tolist(), num("_value"),
-        strip["unit"].tolist(), num("_value_canonical"), frame["_unit_canonical"].tolist(),
-        frame["_normalisation"].tolist(), strip["uncertainty"].tolist(), num("_spread"), num("_low"),
+        frame["_source"].tolist(), strip["id"], strip["species"], strip["life_stage"],
+        strip["age"], num("_age_days"), strip["sex"], strip["strain"],
+        strip["compartment"], strip["quantity"], frame["_kind"].tolist(), num("_value"),
+        strip["unit"], num("_value_canonical"), frame["_unit_canonical"].tolist(),
+        frame["_normalisation"].tolist(), strip["uncertainty"], num("_spread"), num("_low"),
         num("_high"), num("_sd_canonical"), num("_low_canonical"), num("_high_canonical"), n,
-        num("_body_mass_kg"), strip["basis"].tolist(), strip["locator"].tolist(),
-        (frame["verified"].str.strip() == "yes").astype(int).tolist(), strip["missing_reason"].tolist(),
-        strip["comment"].tolist(), frame["_file"].tolist(), frame["_line"].astype(int).tolist(),
+        num("_body_mass_kg"), strip["basis"], strip["locator"],
+        (frame["verified"] == "yes").astype(int).tolist(), strip["missing_reason"],
+        strip["comment"], frame["_file"].tolist(), frame["_line"].astype(int).tolist(),
     ]
     return list(zip(*columns))
 
@@ -101,12 +116,25 @@ VALUE_COLUMNS = ["source_id", "row_id", "species_id", "life_stage_id", "age", "a
                  "missing_reason", "comment", "file", "line"]
 
 
-def content_hash(conn: sqlite3.Connection) -> str:
+def content_hash(conn: sqlite3.Connection, inserted: dict[str, list[tuple]] | None = None) -> str:
+    """SHA-256 over every hashed table's rows in key order.
+
+    ``inserted`` may give a table's rows exactly as they were inserted (with the store's own id
+    prepended, 1, 2, …): hashing those skips reading a large table back, and gives the same bytes
+    (a test checks this against the rows read from the store).
+    """
     digest = hashlib.sha256()
     for table in HASHED_TABLES:
         digest.update(table.encode())
-        for row in conn.execute(f'SELECT * FROM "{table}" ORDER BY 1'):
-            digest.update(repr(row).encode())
+        if inserted and table in inserted:
+            rows = inserted[table]
+            for start in range(0, len(rows), 10_000):
+                digest.update("".join(repr((i, *row)) for i, row in
+                                      enumerate(rows[start:start + 10_000], start + 1)).encode())
+            continue
+        cursor = conn.execute(f'SELECT * FROM "{table}" ORDER BY 1')
+        while rows := cursor.fetchmany(10_000):  # the same bytes as one update per row, with less Python
+            digest.update("".join(map(repr, rows)).encode())
     return digest.hexdigest()
 
 
@@ -131,6 +159,7 @@ def write_store(tree: CuratedTree, frame: pd.DataFrame, path: Path) -> tuple[str
     try:
         conn.execute("PRAGMA foreign_keys = ON")
         conn.execute("PRAGMA synchronous = OFF")  # a temporary file: a crash just discards it
+        conn.execute("PRAGMA journal_mode = MEMORY")
         conn.execute("BEGIN")
         conn.execute("PRAGMA defer_foreign_keys = ON")  # part_of may name a compartment inserted later
         for name, descriptor in descriptors.VOCABULARIES.items():
@@ -141,15 +170,24 @@ def write_store(tree: CuratedTree, frame: pd.DataFrame, path: Path) -> tuple[str
         for src in sorted(tree.sources, key=lambda s: s["key"]):
             f = src["fields"]
             year = f.get("year", "")
-            source_rows.append((src["key"], src["type"], f.get("author"), f.get("title"),
-                                f.get("journal") or f.get("booktitle") or f.get("publisher"),
+            source_rows.append((src["key"], src["type"], f.get("author"), _plain(f.get("title", "")) or None,
+                                _plain(f.get("journal") or f.get("booktitle") or f.get("publisher") or "") or None,
                                 int(year) if year.isdigit() else None, f.get("volume"), f.get("pages"),
                                 f.get("doi"), format_citation(f), src["bibtex"], f.get("note")))
         _insert(conn, "sources", ["id", "entry_type", "author", "title", "container", "year", "volume", "pages",
                                   "doi", "citation", "bibtex", "note"], source_rows)
-        _insert(conn, "curated_values", VALUE_COLUMNS, _value_rows(frame))
+        # indexes are built once after the bulk insert rather than kept up to date row by row
+        indexes = [sql for (sql,) in conn.execute("SELECT sql FROM sqlite_master WHERE type = 'index' AND "
+                                                  "tbl_name = 'curated_values' AND sql IS NOT NULL ORDER BY name")]
+        for (name,) in conn.execute("SELECT name FROM sqlite_master WHERE type = 'index' AND "
+                                    "tbl_name = 'curated_values' AND sql IS NOT NULL").fetchall():
+            conn.execute(f'DROP INDEX "{name}"')
+        value_rows = _value_rows(frame)
+        _insert(conn, "curated_values", VALUE_COLUMNS, value_rows)
+        for sql in indexes:
+            conn.execute(sql)
         _insert(conn, "input_files", ["path", "sha256"], sorted(tree.file_hashes.items()))
-        digest = content_hash(conn)
+        digest = content_hash(conn, {"curated_values": value_rows})
         counts = {t: conn.execute(f'SELECT count(*) FROM "{t}"').fetchone()[0]
                   for t in ("species", "sources", "curated_values")}
         from .. import __version__

@@ -38,21 +38,56 @@ def _decode(raw: bytes, rel: str, findings: Findings) -> str | None:
         return None
 
 
-def _rows(text: str, rel: str, width: int, findings: Findings) -> tuple[list[list[str]], list[int]]:
-    """Row by row with the csv module: exact line numbers, and every malformed row reported."""
+EDGE_SPACES = (", ", " ,", "\n ", " \n", '" ', ' "', '"\n', '\n"')
+
+
+def _may_need_strip(text: str) -> bool:
+    """False only if no cell can begin or end with whitespace (substring tests run at C speed)."""
+    if not text.isascii() or any(c in text for c in "\t\r\x0b\x0c\x1c\x1d\x1e\x1f"):
+        return True
+    return text.startswith((" ", '"')) or text.endswith(" ") or any(s in text for s in EDGE_SPACES)
+
+
+def _records(text: str) -> tuple[list[list[str]], list[int]] | None:
+    """All records at C speed with their line numbers, when no record spans two lines; else None."""
+    if "\r" in text:
+        return None
+    try:
+        records = list(csv.reader(io.StringIO(text, newline="")))
+    except csv.Error:
+        return None
+    if len(records) != text.count("\n") + (not text.endswith("\n")):
+        return None  # a quoted line break: let the record-by-record reader count lines
+    return records, list(range(1, len(records) + 1))
+
+
+def _records_slowly(text: str, rel: str, findings: Findings) -> tuple[list[list[str]], list[int]]:
     reader = csv.reader(io.StringIO(text, newline=""))
-    rows, lines = [], []
+    records, lines = [], []
     start = 1
-    for i, row in enumerate(reader):
-        line = start
-        start = reader.line_num + 1
+    try:
+        for record in reader:
+            records.append(record)
+            lines.append(start)
+            start = reader.line_num + 1
+    except csv.Error as exc:
+        findings.error(rel, start, "row", f"cannot be read as CSV ({exc}); check its quotes")
+    return records, lines
+
+
+def _rows(text: str, rel: str, width: int, findings: Findings) -> tuple[list[list[str]], list[int]]:
+    """Every record with its exact line number; every malformed row reported."""
+    records, numbers = _records(text) or _records_slowly(text, rel, findings)
+    strip = _may_need_strip(text)  # cells are compared as stripped text; most files need no stripping
+    rows, lines = [], []
+    for i, (row, line) in enumerate(zip(records, numbers)):
         if i == 0 or not row:
             continue
         if len(row) != width:
             findings.error(rel, line, "row", f"has {len(row)} fields but the header has {width}; "
                            "quote fields that contain commas")
             continue
-        rows.append(row)
+        rows.append([cell.strip() for cell in row] if strip else row)
         lines.append(line)
     return rows, lines
 
@@ -97,7 +132,10 @@ def read_sources(path: Path, rel: str, findings: Findings) -> list[dict]:
     text = _decode(path.read_bytes(), rel, findings)
     if text is None:
         return []
-    library = bibtexparser.parse_string(text)
+    from bibtexparser.middlewares import LatexDecodingMiddleware
+
+    # fields reach the store as plain text ({\v{R}}ehulka → Řehulka); the raw entry is kept as written
+    library = bibtexparser.parse_string(text, append_middleware=[LatexDecodingMiddleware(keep_braced_groups=True)])
     for block in library.failed_blocks:
         what = "repeats an entry key; keep one entry per key" if "Duplicate" in type(block).__name__ \
             else "is not valid BibTeX; check braces and commas"

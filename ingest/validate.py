@@ -27,14 +27,14 @@ def _report(frame: pd.DataFrame, mask, column: str, message, findings: Findings,
 
 
 def numeric(frame: pd.DataFrame, column: str) -> pd.Series:
-    number = pd.to_numeric(frame[column].str.strip().replace("", np.nan), errors="coerce")
+    number = pd.to_numeric(frame[column].replace("", np.nan), errors="coerce")
     return number.where(np.isfinite(number))  # 'inf' or '1e400' is reported by check_shape, not used
 
 
 def check_shape(frame: pd.DataFrame, descriptor: dict, findings: Findings, skip: set) -> None:
     for spec in descriptor["fields"]:
         name = spec["name"]
-        col = frame[name].str.strip()
+        col = frame[name]
         empty = col == ""
         rules = spec.get("constraints", {})
         if rules.get("required"):
@@ -69,7 +69,7 @@ def check_unique(frame: pd.DataFrame, keys: list[str], findings: Findings, what:
 
 def check_foreign(frame: pd.DataFrame, column: str, known: set, vocab: str, findings: Findings,
                   skip: set) -> None:
-    col = frame[column].str.strip()
+    col = frame[column]
     _report(frame, (col != "") & ~col.isin(known), column,
             lambda v: f"unknown {column} {v!r}; use an id from vocab/{vocab}.csv or add it there", findings, skip)
 
@@ -138,8 +138,8 @@ def check_values(tree: CuratedTree, source_keys: set[str], findings: Findings) -
         check_foreign(frame, column, vocab_ids.get(vocab, set()), vocab, findings, skip)
 
     value, spread, low, high, n = (numeric(frame, c) for c in ("value", "spread", "low", "high", "n"))
-    empty_value = frame["value"].str.strip() == ""
-    reason = frame["missing_reason"].str.strip() != ""
+    empty_value = frame["value"] == ""
+    reason = frame["missing_reason"] != ""
     _report(frame, empty_value & ~reason, "value",
             "is empty without a missing_reason; give the value, or say why the source lacks it", findings, skip)
     _report(frame, ~empty_value & reason, "missing_reason",
@@ -147,7 +147,7 @@ def check_values(tree: CuratedTree, source_keys: set[str], findings: Findings) -
     _report(frame, value < 0, "value", lambda v: f"{v} is negative; physiological amounts are never below 0",
             findings, skip)
 
-    kind = frame["uncertainty"].str.strip()
+    kind = frame["uncertainty"]
     needs_spread = kind.isin(["sd", "se", "cv"])
     needs_bounds = kind.isin(["ci95", "range"])
     _report(frame, needs_spread & spread.isna(), "spread",
@@ -226,7 +226,7 @@ def attach_measures(frame: pd.DataFrame, findings: Findings, skip: set) -> pd.Da
             findings, skip)
     age_days = _measure(frame, "age", "'10 year'", "day", findings, skip, "an age")
     # sd in canonical units: from sd, se·√n, cv·value, or a ci95 of a mean (width / 3.92 · √n)
-    kind = frame["uncertainty"].str.strip().to_numpy()
+    kind = frame["uncertainty"].to_numpy()
     f, spread, n = frame["_factor"].to_numpy(), frame["_spread"].to_numpy(), frame["_n"].to_numpy()
     sd = np.select(
         [kind == "sd", kind == "se", kind == "cv", kind == "ci95"],

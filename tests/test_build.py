@@ -131,3 +131,15 @@ def test_bundled_store_builds(bundled_store):
     used = {r[0] for r in conn.execute("SELECT DISTINCT source_id FROM curated_values")}
     assert values > 0
     assert used <= sources
+
+
+def test_content_hash_is_the_hash_of_the_stored_rows(fixture_tree, tmp_path, bundled_store):
+    from bodyplan.ingest.build_store import content_hash
+
+    path = fixture_tree / V
+    path.write_text(path.read_text().replace(",20,%,none,", ",-0,%,none,"))  # -0 is stored as 0
+    result = build(fixture_tree, tmp_path / "store.sqlite")
+    assert content_hash(sqlite3.connect(result.path)) == result.content_hash
+    stored = sqlite3.connect(bundled_store).execute(
+        "SELECT value FROM build_info WHERE key = 'content_hash'").fetchone()[0]
+    assert content_hash(sqlite3.connect(bundled_store)) == stored

@@ -132,3 +132,16 @@ def test_source_without_values_file_is_allowed(fixture_tree):
     (fixture_tree / "values").mkdir()
     findings, _, frame = check(fixture_tree)
     assert findings.errors == [] and len(frame) == 0
+
+
+@pytest.mark.parametrize("species_cell", [" dog", "dog ", '" dog"', '"dog\n"', "dog\u00a0"])
+def test_cells_are_compared_stripped(fixture_tree, tmp_path, species_cell):
+    import sqlite3
+
+    path = fixture_tree / V
+    text = path.read_text()
+    path.write_text(text.replace("dog_co,dog,", f"dog_co,{species_cell},"))
+    result = build(fixture_tree, tmp_path / "store.sqlite")
+    species = sqlite3.connect(result.path).execute(
+        "SELECT species_id FROM curated_values WHERE row_id = 'dog_co'").fetchone()[0]
+    assert species == "dog"
