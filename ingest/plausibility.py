@@ -178,12 +178,14 @@ def check_unit_typos(frame: pd.DataFrame, findings: Findings) -> None:
     Rows of one unit and compartment share their comparison set, so each such set is computed once.
     """
     rows = _positive(frame)
+    keys = ["_source", "species", "quantity", "_unit_canonical"]
+    rows = rows[rows.groupby(keys)["unit"].transform("nunique").to_numpy() >= 2]  # one unit: nothing to suspect
     unit_of = rows["unit"].to_numpy(dtype=object)
     place = rows["compartment"].to_numpy(dtype=object)
     value = rows["_value_canonical"].to_numpy(dtype=float)
     scale = rows["_factor"].to_numpy(dtype=float)
     row_at = _Rows(rows)
-    for _key, idx in rows.groupby(["_source", "species", "quantity", "_unit_canonical"], sort=True).indices.items():
+    for _key, idx in rows.groupby(keys, sort=True).indices.items():
         units = unit_of[idx]
         names, counts = np.unique(units, return_counts=True)
         if len(names) < 2:
