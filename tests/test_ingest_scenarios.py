@@ -77,8 +77,9 @@ def test_plausibility_warning(scenario, scenario_tree, tmp_path):
     findings, _, _ = check(tree)
     assert findings.errors == []
     assert [str(f) for f in findings.warnings] == [WARNINGS[scenario]]
-    result = build(tree, tmp_path / "store.sqlite")  # warnings do not block a build
+    result = build(tree, tmp_path / "store.sqlite", plausibility=True)  # warnings do not block a build
     assert [str(f) for f in result.warnings] == [WARNINGS[scenario]]
+    assert build(tree, tmp_path / "quiet.sqlite").warnings == []  # a plain build leaves them to check
 
 
 def test_empty_value_with_reason_is_kept_as_a_gap(fixture_tree, tmp_path):

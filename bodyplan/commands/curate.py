@@ -39,12 +39,14 @@ def check_cmd(data_dir, strict):
 @click.argument("data_dir", required=False, type=click.Path(file_okay=False))
 @click.option("--out", "out", type=click.Path(dir_okay=False), default="bodyplan.sqlite", show_default=True,
               help="Where to write the store.")
-def build_cmd(data_dir, out):
+@click.option("--warnings", "warnings", is_flag=True,
+              help="Also print plausibility warnings (as bodyplan check does); slower on large trees.")
+def build_cmd(data_dir, out, warnings):
     """Validate, then build the store atomically (a failed build leaves OUT untouched)."""
     from ..ingest import CuratedDataError, build
 
     try:
-        result = build(_data_dir(data_dir), out)
+        result = build(_data_dir(data_dir), out, plausibility=warnings)
     except CuratedDataError as exc:
         for finding in exc.findings.sorted():
             click.echo(str(finding), err=True)
@@ -55,6 +57,8 @@ def build_cmd(data_dir, out):
     c = result.counts
     click.echo(f"built {result.path}: {c['curated_values']} values, {c['species']} species, "
                f"{c['sources']} sources; content hash {result.content_hash[:16]}")
+    if not warnings:
+        click.echo("plausibility warnings: bodyplan check (or build --warnings)", err=True)
 
 
 @click.command("info")
