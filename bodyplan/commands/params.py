@@ -57,6 +57,8 @@ def render_table(ps, file=None) -> None:
         table.add_row(c["compartment"], val(c["volume"]), how(c["volume"]), val(c["blood_flow"]),
                       how(c["blood_flow"]), short(c["volume"]["sources"] + c["blood_flow"]["sources"]))
     console.print(table)
+    console.print("± sd of one study, or (se) of a pooled mean; \\[low–high] the range of the study values, "
+                  "or for allometric fills the 95 % prediction interval")
     console.print(f"liver flow: {d['liver_flow']}")
     for check in d["checks"]:
         style = {"pass": "green", "warn": "yellow", "fail": "bold red"}[check["status"]]
