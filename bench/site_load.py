@@ -41,7 +41,7 @@ def free_port() -> int:
 
 def start_server(store: Path) -> tuple[subprocess.Popen, str]:
     port = free_port()
-    proc = subprocess.Popen([sys.executable, "-c", "from bodyplan.cli import main; main()", "serve", "--port",
+    proc = subprocess.Popen([sys.executable, "-P", "-c", "from bodyplan.cli import main; main()", "serve", "--port",
                              str(port), "--store", str(store)], stdout=subprocess.PIPE, stderr=subprocess.STDOUT,
                             text=True, env=dict(os.environ, BODYPLAN_STORE=""))
     base = f"http://127.0.0.1:{port}"

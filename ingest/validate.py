@@ -228,12 +228,13 @@ def attach_measures(frame: pd.DataFrame, findings: Findings, skip: set) -> pd.Da
     # sd in canonical units: from sd, se·√n, cv·value, or a ci95 of a mean (width / 3.92 · √n)
     kind = frame["uncertainty"].to_numpy()
     f, spread, n = frame["_factor"].to_numpy(), frame["_spread"].to_numpy(), frame["_n"].to_numpy()
-    sd = np.select(
-        [kind == "sd", kind == "se", kind == "cv", kind == "ci95"],
-        [spread * f, spread * np.sqrt(n) * f, frame["_value_canonical"].to_numpy() * spread / 100,
-         (frame["_high_canonical"].to_numpy() - frame["_low_canonical"].to_numpy()) / 3.92 * np.sqrt(n)],
-        default=np.nan,
-    )
+    with np.errstate(invalid="ignore", over="ignore"):  # malformed n or spreads are reported, not used
+        sd = np.select(
+            [kind == "sd", kind == "se", kind == "cv", kind == "ci95"],
+            [spread * f, spread * np.sqrt(n) * f, frame["_value_canonical"].to_numpy() * spread / 100,
+             (frame["_high_canonical"].to_numpy() - frame["_low_canonical"].to_numpy()) / 3.92 * np.sqrt(n)],
+            default=np.nan,
+        )
     return frame.assign(_body_mass_kg=body_kg, _age_days=age_days, _sd_canonical=sd)
 
 
