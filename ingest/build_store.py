@@ -82,7 +82,7 @@ def _vocab_rows(frame: pd.DataFrame, columns: list[str]) -> list[tuple]:
 
 def _text(column: pd.Series) -> list:
     """Cells (stripped when read) as a list, empty ones as None."""
-    cells = column.to_numpy(dtype=object)
+    cells = column.to_numpy(dtype=object, copy=True)
     cells[cells == ""] = None
     return cells.tolist()
 
@@ -121,24 +121,40 @@ VALUE_COLUMNS = ["id", "source_id", "row_id", "species_id", "life_stage_id", "ag
                  "missing_reason", "comment", "file", "line"]
 
 
+def _digest_rows(digest, rows: list[tuple]) -> None:
+    """Feed a table's rows to ``digest`` column by column: numbers as float64 bytes, text joined.
+
+    Column-wise hashing costs a fraction of one repr per row, and gives the same bytes for rows
+    as inserted and as read back from SQLite (a test checks this).
+    """
+    digest.update(str(len(rows)).encode())
+    for column in zip(*rows):
+        try:
+            numbers = np.array(column, dtype=float)  # None becomes NaN; text raises
+        except (TypeError, ValueError):
+            digest.update(b"text")
+            try:
+                text = "\x1f".join([v if v is not None else "\x00" for v in column])
+            except TypeError:  # a number among the text
+                text = "\x1f".join(["\x00" if v is None else str(v) for v in column])
+            digest.update(text.encode())
+        else:
+            digest.update(b"numbers")
+            digest.update((numbers + 0.0).tobytes())
+
+
 def content_hash(conn: sqlite3.Connection, inserted: dict[str, list[tuple]] | None = None) -> str:
     """SHA-256 over every hashed table's rows in key order.
 
     ``inserted`` may give a table's rows exactly as they were inserted, all columns in order:
-    hashing those skips reading a large table back, and gives the same bytes (a test checks this
-    against the rows read from the store).
+    hashing those skips reading a large table back.
     """
     digest = hashlib.sha256()
     for table in HASHED_TABLES:
         digest.update(table.encode())
-        if inserted and table in inserted:
-            rows = inserted[table]
-            for start in range(0, len(rows), 10_000):
-                digest.update("".join(map(repr, rows[start:start + 10_000])).encode())
-            continue
-        cursor = conn.execute(f'SELECT * FROM "{table}" ORDER BY 1')
-        while rows := cursor.fetchmany(10_000):  # the same bytes as one update per row, with less Python
-            digest.update("".join(map(repr, rows)).encode())
+        rows = inserted[table] if inserted and table in inserted else \
+            conn.execute(f'SELECT * FROM "{table}" ORDER BY 1').fetchall()
+        _digest_rows(digest, rows)
     return digest.hexdigest()
 
 

@@ -110,7 +110,7 @@ def read_table(path: Path, rel: str, descriptor: dict, findings: Findings,
         findings.error(rel, 1, "header", "repeats a column name; each column appears once")
         return None
     rows, lines = _rows(text, rel, len(header), findings)
-    frame = pd.DataFrame(rows, columns=header, dtype=str)
+    frame = pd.DataFrame(rows, columns=header, dtype=object)  # plain Python strings: faster than pandas 3's "str" arrays here
     for name in expected:
         if name not in frame.columns:
             findings.error(rel, 1, name, f"missing column {name!r}; the header must be: {','.join(expected)}")
