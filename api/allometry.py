@@ -9,8 +9,12 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
+
+if TYPE_CHECKING:  # pandas loads lazily, inside the functions that need it
+    import pandas as pd
 
 
 class AllometryError(ValueError):
@@ -169,7 +173,7 @@ def species_body_mass(store, species: str, life_stage: str) -> tuple[float | Non
 
 def _default_compartment(store, quantity: str) -> str:
     found = [r[0] for r in store.query("SELECT DISTINCT compartment_id FROM curated_values WHERE quantity_id IN "
-                                       f"(?, ?) ORDER BY 1", (quantity, BODY_MASS_FRACTIONS.get(quantity, quantity)))]
+                                       "(?, ?) ORDER BY 1", (quantity, BODY_MASS_FRACTIONS.get(quantity, quantity)))]
     if len(found) == 1:
         return found[0]
     if "whole_body" in found:

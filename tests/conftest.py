@@ -42,3 +42,21 @@ def scenario_tree(tmp_path):
     def make(name: str) -> Path:
         return make_tree(tmp_path / name.replace("/", "_"), DATA / name)
     return make
+
+
+
+@pytest.fixture(scope="session")
+def store_from_tree(tmp_path_factory):
+    """A function: a tree's values/ and sources.bib over the bundled vocabularies → the open store."""
+    import bodyplan
+    from bodyplan.api.locate import bundled_data_dir
+    from bodyplan.ingest import build
+
+    def make(tree: Path):
+        root = tmp_path_factory.mktemp(tree.name)
+        shutil.copytree(bundled_data_dir() / "vocab", root / "vocab")
+        shutil.copytree(tree / "values", root / "values")
+        shutil.copy(tree / "sources.bib", root / "sources.bib")
+        build(root, root / "store.sqlite")
+        return bodyplan.open_store(root / "store.sqlite")
+    return make

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import json
-import shutil
 from pathlib import Path
 
 import numpy as np
@@ -11,8 +10,6 @@ import pytest
 
 import bodyplan
 from bodyplan.api.allometry import AllometryError, allometry, fit_power_law
-from bodyplan.api.locate import bundled_data_dir
-from bodyplan.ingest import build
 
 # Points invented for tests: body masses (kg) and values with scatter around a power law.
 MASS = np.array([0.025, 0.3, 2.5, 12.0, 70.0, 450.0, 600.0])
@@ -88,13 +85,8 @@ TOY = Path(__file__).parent / "data" / "allometry_toy"
 
 
 @pytest.fixture(scope="module")
-def toy_store(tmp_path_factory):
-    root = tmp_path_factory.mktemp("allometry_toy")
-    shutil.copytree(bundled_data_dir() / "vocab", root / "vocab")
-    shutil.copytree(TOY / "values", root / "values")
-    shutil.copy(TOY / "sources.bib", root / "sources.bib")
-    build(root, root / "toy.sqlite")
-    return bodyplan.open_store(root / "toy.sqlite")
+def toy_store(store_from_tree):
+    return store_from_tree(TOY)
 
 
 def test_rows_become_absolute_values_one_point_per_species(toy_store):

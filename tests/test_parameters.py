@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import json
 import math
-import shutil
 from pathlib import Path
 
 import numpy as np
@@ -18,29 +17,20 @@ from hypothesis import strategies as st
 
 import bodyplan
 from bodyplan.api.layouts import LayoutError, load_layout
-from bodyplan.api.locate import bundled_data_dir
 from bodyplan.api.parameters import ParameterSetError
 from bodyplan.api.pooling import pool
-from bodyplan.ingest import build
 
 TOY = Path(__file__).parent / "data" / "params_toy"
 
 
 @pytest.fixture(scope="module")
-def toy_store(tmp_path_factory):
-    root = tmp_path_factory.mktemp("toy")
-    shutil.copytree(bundled_data_dir() / "vocab", root / "vocab")
-    shutil.copytree(TOY / "values", root / "values")
-    shutil.copy(TOY / "sources.bib", root / "sources.bib")
-    build(root, root / "toy.sqlite")
-    return bodyplan.open_store(root / "toy.sqlite")
+def toy_store(store_from_tree):
+    return store_from_tree(TOY)
 
 
 @pytest.fixture(scope="module")
-def real_store(tmp_path_factory):
-    path = tmp_path_factory.mktemp("real") / "store.sqlite"
-    build(bundled_data_dir(), path)
-    return bodyplan.open_store(path)
+def real_store(bundled_store):
+    return bodyplan.open_store(bundled_store)
 
 
 def cell(ps, compartment, parameter):

@@ -2,11 +2,11 @@
 
 from __future__ import annotations
 
-import io
 from pathlib import Path
 
 import numpy as np
 
+from . import figure_png
 from ..api.allometry import AllometryResult
 
 
@@ -66,13 +66,4 @@ def allometry_figure(result: AllometryResult, prediction: dict | None = None, sp
 
 def write_allometry_png(result: AllometryResult, path: str | Path | None = None, prediction: dict | None = None,
                         species: str | None = None) -> bytes:
-    import matplotlib.pyplot as plt
-
-    fig = allometry_figure(result, prediction, species)
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=150)
-    plt.close(fig)
-    data = buf.getvalue()
-    if path is not None:
-        Path(path).write_bytes(data)
-    return data
+    return figure_png(allometry_figure(result, prediction, species), path)

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from . import figure_png
 from ..api.gaps import STATES, GapReport
 
 HATCH = {"fraction only": "////"}
@@ -103,15 +104,4 @@ def heatmap_figure(report: GapReport):
 
 def write_heatmap(report: GapReport, path: str | Path | None = None) -> bytes:
     """Render the heatmap as PNG; write it to path if given; return the bytes."""
-    import io
-
-    import matplotlib.pyplot as plt
-
-    fig = heatmap_figure(report)
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=150)
-    plt.close(fig)
-    data = buf.getvalue()
-    if path is not None:
-        Path(path).write_bytes(data)
-    return data
+    return figure_png(heatmap_figure(report), path)
