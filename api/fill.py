@@ -65,6 +65,11 @@ def fill_allometric(store, ps) -> None:
     if ps.body_weight.fill == "gap":
         return
     bw = ps.body_weight.value
+    if ps.physiology.get("gfr") is not None and ps.physiology["gfr"].fill == "gap":
+        cell = allometric_cell(store, ps.species, ps.life_stage, ps.layout,
+                               lambda other: other.physiology.get("gfr"), bw, "L/h")
+        if cell is not None:
+            ps.physiology["gfr"] = cell
     for comp in ps.layout.compartments:
         if ps.volumes[comp].fill == "gap":
             cell = allometric_cell(store, ps.species, ps.life_stage, ps.layout,

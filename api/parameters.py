@@ -17,8 +17,10 @@ from .resolve import PORTAL_ORGANS, SAME_BODY_WEIGHT, Resolved, Resolver
 FILLS = ("measured", "pooled", "scaled", "allometric", "gap", "not_applicable")
 FLOW_TOLERANCE = 0.05  # named systemic flows may exceed cardiac output by 5 % before the set is flagged
 REST_DENSITY = 1.0  # kg/L, stated on the rest_of_body volume wherever it is used
-UNITS = {"SI": {"volume": ("L", 1.0), "blood_flow": ("L/h", 1.0)},
-         "clinical": {"volume": ("mL", 1000.0), "blood_flow": ("mL/min", 1000.0 / 60.0)}}
+UNITS = {"SI": {"volume": ("L", 1.0), "blood_flow": ("L/h", 1.0), "gfr": ("L/h", 1.0), "hematocrit": ("1", 1.0)},
+         "clinical": {"volume": ("mL", 1000.0), "blood_flow": ("mL/min", 1000.0 / 60.0),
+                      "gfr": ("mL/min", 1000.0 / 60.0), "hematocrit": ("1", 1.0)}}
+PHYSIOLOGY = {"gfr": "whole_body", "hematocrit": "blood"}  # extra numbers a PBPK model usually needs
 
 
 class ParameterSetError(ValueError):
@@ -76,13 +78,15 @@ def _fill_for(resolved: Resolved, body_weight: float) -> str:
     return "measured" if resolved.estimate.n_studies == 1 else "pooled"
 
 
-def _cell(resolved: Resolved, factor: float, unit: str, body_weight: float, extra_method: str = "") -> Cell:
+def _cell(resolved: Resolved, factor: float, unit: str, body_weight: float | None, extra_method: str = "") -> Cell:
+    """A resolved estimate times ``factor``; ``body_weight`` None means nothing was scaled (a fraction)."""
     if not resolved.ok:
         return Cell.gap(unit, resolved.reason)
     est: Estimate = resolved.estimate.scaled(factor)
     method = est.method + (f" ({'; '.join(resolved.notes)})" if resolved.notes else "") + extra_method
-    return Cell(est.value, unit, _fill_for(resolved, body_weight), est.sd, est.se, est.low, est.high,
-                est.sources, method)
+    fill = ("measured" if est.n_studies == 1 else "pooled") if body_weight is None else \
+        _fill_for(resolved, body_weight)
+    return Cell(est.value, unit, fill, est.sd, est.se, est.low, est.high, est.sources, method)
 
 
 def _sum_cells(cells: list[Cell], unit: str, what: str) -> Cell:
@@ -112,6 +116,7 @@ class ParameterSet:
     volumes: dict[str, Cell]
     flows: dict[str, Cell]
     liver_flow: str  # what the liver's flow means in this set
+    physiology: dict[str, Cell] = field(default_factory=dict)  # GFR and hematocrit
     checks: list[dict] = field(default_factory=list)
     fill_policy: str = "none"
     units: str = "SI"
@@ -127,6 +132,9 @@ class ParameterSet:
         for name, cell in (("body_weight", self.body_weight), ("cardiac_output", self.cardiac_output)):
             if cell.fill == "gap":
                 out.append({"compartment": "whole_body", "quantity": name, "reason": cell.reason})
+        for name, cell in self.physiology.items():
+            if cell.fill == "gap":
+                out.append({"compartment": PHYSIOLOGY[name], "quantity": name, "reason": cell.reason})
         for comp in self.compartments:
             for quantity, cell in (("volume", self.volumes[comp]), ("blood_flow", self.flows[comp])):
                 if cell.fill == "gap":
@@ -142,6 +150,8 @@ class ParameterSet:
         rows = [dict(compartment="whole_body", parameter="body_weight", **_flat(self.body_weight)),
                 dict(compartment="whole_body", parameter="cardiac_output",
                      **_flat(self._unit_cell("blood_flow", self.cardiac_output)))]
+        for name, cell in self.physiology.items():
+            rows.append(dict(compartment=PHYSIOLOGY[name], parameter=name, **_flat(self._unit_cell(name, cell))))
         for comp in self.compartments:
             rows.append(dict(compartment=comp, parameter="volume",
                              **_flat(self._unit_cell("volume", self.volumes[comp]))))
@@ -169,6 +179,7 @@ class ParameterSet:
             "body_weight": self.body_weight.as_dict(),
             "cardiac_output": self._unit_cell("blood_flow", self.cardiac_output).as_dict(),
             "liver_flow": self.liver_flow,
+            "physiology": {name: self._unit_cell(name, cell).as_dict() for name, cell in self.physiology.items()},
             "compartments": [
                 {"compartment": comp, "stored_compartments": self.layout.compartments.get(comp, []),
                  "volume": self._unit_cell("volume", self.volumes[comp]).as_dict(),
@@ -356,7 +367,12 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
         co = fill_cardiac_output(store, species, life_stage, lay, bw) or co
     volumes = _volume_cells(resolver, lay, bw)
     flows, liver_flow = _flow_cells(resolver, lay, co, bw)
-    ps = ParameterSet(species, life_stage, sex, lay, bw_cell, co, volumes, flows, liver_flow,
+    physiology = {
+        "gfr": _cell(resolver.per_body_mass("gfr", "whole_body"), bw, "L/h", bw) if bw is not None
+        else Cell.gap("L/h", "no body weight to scale GFR to"),
+        "hematocrit": _cell(resolver.fraction("hematocrit", "blood"), 1.0, "1", None),
+    }
+    ps = ParameterSet(species, life_stage, sex, lay, bw_cell, co, volumes, flows, liver_flow, physiology,
                       fill_policy=fill, units=units)
     if fill == "allometric":
         from .fill import fill_allometric

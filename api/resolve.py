@@ -179,6 +179,22 @@ class Resolver:
         at = [self.subject_mass(r) for r in absolute] if len(absolute) == len(rows) else []
         return Resolved(_pool(rows), rows, notes, at)
 
+    # ---- whole-body rates and blood fractions ------------------------------------------------
+    def per_body_mass(self, quantity: str, compartment: str) -> Resolved:
+        """A rate such as GFR per kg body weight, from absolute (over the subjects' mass) or per-kg rows."""
+        rows = [r for r in self.rows(quantity, compartment) if r["normalisation"] in ("none", "body_mass")]
+        rows = self._per_body_mass(rows, quantity)
+        if not rows:
+            return _gap(f"no {quantity} per body mass or absolute stored for {self.species} ({self.life_stage})")
+        return self._resolved(rows, [])
+
+    def fraction(self, quantity: str, compartment: str) -> Resolved:
+        """A dimensionless fraction such as hematocrit, pooled across sources."""
+        rows = [self._routed(r, quantity, 1.0) for r in self.rows(quantity, compartment)]
+        if not rows:
+            return _gap(f"no {quantity} stored for {self.species} ({self.life_stage})")
+        return self._resolved(rows, [])
+
     # ---- cardiac output ----------------------------------------------------------------------
     @cached_property
     def cardiac_output_rows(self) -> list[dict]:

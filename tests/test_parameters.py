@@ -311,3 +311,17 @@ def test_cli_params_json(real_store, tmp_path):
     table = CliRunner().invoke(cli, ["params", "dog", "--store", str(real_store.path)])
     assert "liver" in table.output and "research modelling" in table.output
     assert math.isfinite(d["body_weight"]["value"])
+
+
+def test_gfr_scales_per_kg_and_hematocrit_is_not_scaled(toy_store):
+    ps = toy_store.parameter_set("dog", body_weight="12 kg")
+    gfr, hct = ps.physiology["gfr"], ps.physiology["hematocrit"]
+    assert gfr.value == pytest.approx(4 * 12 * 60 / 1000)  # 4 mL/min/kg × 12 kg in L/h
+    assert gfr.fill == "scaled"
+    assert hct.value == pytest.approx(0.45) and hct.fill == "measured" and hct.sd == pytest.approx(0.03)
+    d = json.loads(toy_store.parameter_set("dog", units="clinical").to_json())
+    assert d["physiology"]["gfr"]["unit"] == "mL/min"
+    assert d["physiology"]["gfr"]["value"] == pytest.approx(40.0)  # 4 mL/min/kg × the dog's 10 kg
+    ferret = toy_store.parameter_set("ferret")
+    assert {"compartment": "blood", "quantity": "hematocrit",
+            "reason": "no hematocrit stored for ferret (adult)"} in ferret.gaps

@@ -59,6 +59,11 @@ def render_table(ps, file=None) -> None:
     console.print(table)
     console.print("± sd of one study, or (se) of a pooled mean; \\[low–high] the range of the study values, "
                   "or for allometric fills the 95 % prediction interval")
+    for name, label in (("gfr", "GFR"), ("hematocrit", "hematocrit")):
+        cell = d["physiology"].get(name)
+        if cell:
+            unit = "" if cell["unit"] == "1" else f" {cell['unit']}"
+            console.print(f"{label}: {val(cell)}{unit} ({how(cell)}; {short(cell['sources']) or 'no source'})")
     console.print(f"liver flow: {d['liver_flow']}")
     for check in d["checks"]:
         style = {"pass": "green", "warn": "yellow", "fail": "bold red"}[check["status"]]
