@@ -77,8 +77,9 @@ def gap_report_html(report: GapReport, png: bytes | None = None, store_info: dic
         f"<h1>Gap report: layout {escape(report.layout)}, {escape(stage)}</h1>",
         f'<p class="note">{len(ranked)} species × stage rows, {len(report.parameters)} parameters. '
         f"Store {escape(str(info.get('store', '')))}, content hash {escape(str(info.get('content_hash', ''))[:16])}."
-        " Readiness is the share of the layout's parameter set (body weight, cardiac output, volume and "
-        "blood flow per compartment; rest_of_body left out) that the store supplies without filling.</p>",
+        " Readiness is the share of the layout's parameter set (body weight, cardiac output, GFR, hematocrit, "
+        "volume and blood flow per compartment; rest_of_body left out) that the store supplies without "
+        "filling.</p>",
         "<h2>Coverage</h2>",
         f'<img id="heatmap" alt="coverage heatmap: species by parameter, coloured by state" '
         f'src="data:image/png;base64,{image}">',
