@@ -16,6 +16,8 @@ from dataclasses import dataclass
 
 import pandas as pd
 
+from ..schema.anatomy import FLUID_VOLUME, PORTAL_ORGANS
+
 # How a coverage cell stands, from worst to best; the index is the cell's level in the heatmap.
 STATES = ["absent", "fraction only", "no uncertainty", "unverified", "verified", "several sources"]
 STATE_HELP = {
@@ -27,13 +29,9 @@ STATE_HELP = {
     "several sources": "two or more sources, at least one with an absolute value",
 }
 VOLUME_QUANTITIES = ["tissue_volume", "tissue_mass", "tissue_mass_fraction"]
-FLUID_VOLUMES = {"blood": "blood_volume", "plasma": "plasma_volume"}
 FLOW_QUANTITIES = ["blood_flow", "blood_flow_fraction"]
 RELATIVE_QUANTITIES = {"tissue_mass_fraction", "blood_flow_fraction"}
 FLUIDS = {"blood", "plasma"}
-# Organs whose venous blood drains into the liver (common practice, no source); the liver's own
-# arterial flow in a layout that keeps them separate needs their flows too.
-PORTAL_ORGANS = {"gut", "spleen", "pancreas", "stomach", "small_intestine", "large_intestine"}
 
 
 @dataclass(frozen=True)
@@ -53,7 +51,7 @@ def layout_parameters(layout) -> list[Parameter]:
               Parameter("gfr", "GFR", ("whole_body",), ("gfr",), None),
               Parameter("hematocrit", "hematocrit", ("blood",), ("hematocrit",), None)]
     for model, parts in layout.compartments.items():
-        volume = list(VOLUME_QUANTITIES) + [FLUID_VOLUMES[p] for p in parts if p in FLUID_VOLUMES]
+        volume = list(VOLUME_QUANTITIES) + [FLUID_VOLUME[p] for p in parts if p in FLUID_VOLUME]
         params.append(Parameter(f"{model}.volume", f"{model} vol", tuple(parts), tuple(volume), (model, "volume")))
     for model, parts in layout.compartments.items():
         if not set(parts) <= FLUIDS:  # blood carries the cardiac output; it has no flow of its own

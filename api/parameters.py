@@ -12,7 +12,8 @@ import pandas as pd
 from .. import CAUTION
 from .layouts import REST, Layout, load_layout
 from .pooling import Estimate
-from .resolve import PORTAL_ORGANS, SAME_BODY_WEIGHT, Resolved, Resolver
+from ..schema.anatomy import PORTAL_ORGANS
+from .resolve import SAME_BODY_WEIGHT, Resolved, Resolver
 
 FILLS = ("measured", "pooled", "scaled", "allometric", "gap", "not_applicable")
 FLOW_TOLERANCE = 0.05  # named systemic flows may exceed cardiac output by 5 % before the set is flagged

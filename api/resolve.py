@@ -16,16 +16,15 @@ from collections import defaultdict
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 
+from ..schema.anatomy import FLUID_VOLUME
 from .pooling import Estimate, pool
 
 ROW_COLUMNS = ("source_id, row_id, compartment_id, quantity_id, normalisation, value_canonical, sd_canonical, "
                "n, subject_body_mass_kg, sex, strain, age, verified, file, line")
 VOLUME_ROUTES = ["tissue_volume", "tissue_mass", "tissue_mass_fraction"]
 FLOW_ROUTES = ["blood_flow_fraction", "blood_flow"]
-FLUID_VOLUME = {"blood": "blood_volume", "plasma": "plasma_volume"}
 ABSOLUTE_ROUTES = {"tissue_volume", "tissue_mass", "blood_volume", "plasma_volume", "blood_flow", "cardiac_output"}
 SKIP_AS_PART = {"hepatic_artery", "portal_vein"}  # vessels carry the whole's flow, they are not extra tissue
-PORTAL_ORGANS = {"gut", "spleen", "pancreas", "stomach", "small_intestine", "large_intestine"}
 SAME_BODY_WEIGHT = 0.02  # relative difference under which rows describe the requested body weight
 NAN = float("nan")
 

@@ -5,13 +5,13 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from ..schema.anatomy import PORTAL_ORGANS
 from ..units import UnitError, conversion
 from .findings import Findings
 from .read import CuratedTree
 from .validate import plausible_ranges
 
 GROUP = ["_source", "species", "life_stage", "sex", "strain", "age"]
-PORTAL_CONTRIBUTORS = {"gut", "spleen", "pancreas", "stomach", "small_intestine", "large_intestine"}
 
 
 def check_ranges(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> None:
@@ -61,7 +61,7 @@ def check_sums(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> No
     def flows(values, places):
         counted = np.ones(len(values), dtype=bool)
         if "liver" in set(places):  # liver flow is total hepatic flow, which already carries the portal organs
-            counted = ~np.isin(places, list(PORTAL_CONTRIBUTORS))
+            counted = ~np.isin(places, list(PORTAL_ORGANS))
         total = values[counted].sum()
         return total if total > 1.1 or (counted.sum() >= 8 and total < 0.9) else None
 
