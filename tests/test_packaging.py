@@ -62,3 +62,20 @@ def test_package_data_covers_the_curated_files():
 
 def test_package_data_covers_the_unit_definitions():
     assert covered("bodyplan.units", PurePosixPath("definitions.txt"))
+
+
+def test_readme_python_example_runs_from_the_repository_root(bundled_store):
+    """No folder at the root shadows the installed package: the README's Python block runs where the
+    quick start leaves a newcomer."""
+    import os
+    import re
+    import subprocess
+    import sys
+
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    block = re.search(r"```python\n(.*?)```", readme, re.S).group(1)
+    assert "open_store" in block
+    done = subprocess.run([sys.executable, "-c", block + "\nprint('example ran')"], cwd=ROOT, text=True,
+                          capture_output=True, env=dict(os.environ, BODYPLAN_STORE=str(bundled_store)), timeout=300)
+    assert done.returncode == 0, done.stderr
+    assert "example ran" in done.stdout

@@ -48,7 +48,7 @@ def store(tmp_path_factory) -> Path:
 @pytest.fixture(scope="module")
 def server(store):
     port = free_port()
-    command = [sys.executable, "-P", "-c", "from bodyplan.cli import main; main()", "serve", "--port", str(port),
+    command = [sys.executable, "-c", "from bodyplan.cli import main; main()", "serve", "--port", str(port),
                "--store", str(store)]
     proc = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True,
                             env=dict(os.environ, BODYPLAN_STORE=""))
