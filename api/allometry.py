@@ -13,6 +13,8 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from ..schema.model import BODY_MASS_SHARES
+
 if TYPE_CHECKING:  # pandas loads lazily, inside the functions that need it
     import pandas as pd
 
@@ -126,9 +128,6 @@ def fit_power_law(body_mass_kg, values, labels: list[str] | None = None, level: 
 # ---- from the store to one point per species ------------------------------------------------------
 
 CLASSES = {"mammals": "mammal", "birds": "bird", "fish": "fish", "all": None}
-# Relative forms that become the absolute quantity when multiplied by the subjects' body mass.
-# (Water fractions are left out: turning kg of water into litres would need a density.)
-BODY_MASS_FRACTIONS = {"tissue_mass": "tissue_mass_fraction"}
 
 
 @dataclass
@@ -173,7 +172,7 @@ def species_body_mass(store, species: str, life_stage: str) -> tuple[float | Non
 
 def _default_compartment(store, quantity: str) -> str:
     found = [r[0] for r in store.query("SELECT DISTINCT compartment_id FROM curated_values WHERE quantity_id IN "
-                                       "(?, ?) ORDER BY 1", (quantity, BODY_MASS_FRACTIONS.get(quantity, quantity)))]
+                                       "(?, ?) ORDER BY 1", (quantity, BODY_MASS_SHARES.get(quantity, quantity)))]
     if len(found) == 1:
         return found[0]
     if "whole_body" in found:
@@ -189,7 +188,7 @@ def absolute_rows(store, quantity: str, compartment: str, life_stage: str = "adu
 
     if taxon_class not in CLASSES:
         raise AllometryError(f"unknown class {taxon_class!r}; use one of {', '.join(CLASSES)}")
-    wanted = [quantity] + ([BODY_MASS_FRACTIONS[quantity]] if quantity in BODY_MASS_FRACTIONS else [])
+    wanted = [quantity] + ([BODY_MASS_SHARES[quantity]] if quantity in BODY_MASS_SHARES else [])
     sql = ("SELECT v.species_id AS species, v.quantity_id AS quantity, v.normalisation, v.value_canonical, "
            "v.unit_canonical, v.subject_body_mass_kg, v.source_id AS source, v.row_id, v.verified, s.taxon_class "
            "FROM curated_values v JOIN species s ON s.id = v.species_id "

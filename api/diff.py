@@ -11,6 +11,8 @@ from dataclasses import dataclass, field
 
 import pandas as pd
 
+from .jsonable import json_scalar
+
 COMPARED = ["species_id", "life_stage_id", "age", "sex", "strain", "compartment_id", "quantity_id", "value",
             "unit", "value_canonical", "unit_canonical", "uncertainty", "spread", "low", "high", "n",
             "subject_body_mass_kg", "basis", "locator", "verified", "missing_reason", "comment"]
@@ -107,12 +109,6 @@ def _same(a, b) -> bool:
     return a_missing == b_missing and (a_missing or a == b)
 
 
-def _plain(x):
-    if x is None or (isinstance(x, float) and math.isnan(x)):
-        return None
-    return x.item() if hasattr(x, "item") else x
-
-
 def _values(store) -> pd.DataFrame:
     return store.frame(f"SELECT {', '.join(KEY + COMPARED)} FROM curated_values ORDER BY source_id, row_id")
 
@@ -135,7 +131,7 @@ def diff_stores(old, new) -> StoreDiff:
 
     changed = []
     for row in merged[merged["_merge"] == "both"].to_dict("records"):
-        changes = {c: [_plain(row[f"{c}_old"]), _plain(row[f"{c}_new"])] for c in COMPARED
+        changes = {c: [json_scalar(row[f"{c}_old"]), json_scalar(row[f"{c}_new"])] for c in COMPARED
                    if not _same(row[f"{c}_old"], row[f"{c}_new"])}
         if changes:
             changed.append({"source_id": row["source_id"], "row_id": row["row_id"],

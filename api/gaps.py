@@ -1,13 +1,14 @@
 """Gap report: what the store holds per species and parameter, how usable it is, and what to curate next.
 
 Three views, all plain DataFrames:
-- coverage: one row per species, stage and parameter (the layout's compartments × volume and blood
-  flow, plus body mass, cardiac output, GFR, hematocrit), counting the curated rows behind it and
-  saying how it stands (see STATES); a model compartment lumping several stored ones stands as its
-  worst part. Only rows on the compartments the layout names are counted; sub-compartments
-  (stomach for gut) are not, although parameter sets may sum them.
+- coverage: one row per species, stage and slot (schema.model: body mass, cardiac output, GFR,
+  hematocrit, and each model compartment's volume and blood flow), counting the curated rows that
+  can feed it (its routes on the stored compartments it lumps and their parts, which parameter sets
+  sum when the whole has no rows) and saying how it stands (see STATES); a model compartment lumping
+  several stored ones stands as its worst part.
 - readiness: the share of a parameter set's numbers (fill="none") that are not gaps.
-- most_wanted: which single parameter, once curated, closes the most gaps and readies the most species.
+- most_wanted: which single slot, once curated, closes the most gaps and readies the most species;
+  what a gap waits on is read from the parameter set's own dependencies.
 """
 
 from __future__ import annotations
@@ -16,7 +17,7 @@ from dataclasses import dataclass
 
 import pandas as pd
 
-from ..schema.anatomy import FLUID_VOLUME, PORTAL_ORGANS
+from ..schema.model import SCALED_SHARES, Slot, slots, sub_parts
 
 # How a coverage cell stands, from worst to best; the index is the cell's level in the heatmap.
 STATES = ["absent", "fraction only", "no uncertainty", "unverified", "verified", "several sources"]
@@ -28,36 +29,6 @@ STATE_HELP = {
     "verified": "one source with an absolute value and uncertainty, checked against the source text",
     "several sources": "two or more sources, at least one with an absolute value",
 }
-VOLUME_QUANTITIES = ["tissue_volume", "tissue_mass", "tissue_mass_fraction"]
-FLOW_QUANTITIES = ["blood_flow", "blood_flow_fraction"]
-RELATIVE_QUANTITIES = {"tissue_mass_fraction", "blood_flow_fraction"}
-FLUIDS = {"blood", "plasma"}
-
-
-@dataclass(frozen=True)
-class Parameter:
-    id: str  # "liver.volume", "cardiac_output"
-    label: str  # short column label for the matrix
-    compartments: tuple[str, ...]  # stored compartment ids counted
-    quantities: tuple[str, ...]
-    model: tuple[str, str] | None  # (compartment, parameter) in a parameter set's table, if any
-
-
-def layout_parameters(layout) -> list[Parameter]:
-    """The coverage matrix's columns for a layout: whole-body ones, then volume and flow per compartment."""
-    params = [Parameter("body_mass", "body mass", ("whole_body",), ("body_mass",), ("whole_body", "body_weight")),
-              Parameter("cardiac_output", "cardiac output", ("whole_body",), ("cardiac_output",),
-                        ("whole_body", "cardiac_output")),
-              Parameter("gfr", "GFR", ("whole_body",), ("gfr",), None),
-              Parameter("hematocrit", "hematocrit", ("blood",), ("hematocrit",), None)]
-    for model, parts in layout.compartments.items():
-        volume = list(VOLUME_QUANTITIES) + [FLUID_VOLUME[p] for p in parts if p in FLUID_VOLUME]
-        params.append(Parameter(f"{model}.volume", f"{model} vol", tuple(parts), tuple(volume), (model, "volume")))
-    for model, parts in layout.compartments.items():
-        if not set(parts) <= FLUIDS:  # blood carries the cardiac output; it has no flow of its own
-            params.append(Parameter(f"{model}.blood_flow", f"{model} flow", tuple(parts), tuple(FLOW_QUANTITIES),
-                                    (model, "blood_flow")))
-    return params
 
 
 def cell_state(rows: pd.DataFrame) -> str:
@@ -77,33 +48,34 @@ def cell_state(rows: pd.DataFrame) -> str:
 @dataclass
 class GapReport:
     layout: str
-    stage: str
-    parameters: list[Parameter]
-    coverage: pd.DataFrame  # species, life_stage, parameter, label, state, level, counts, sources
+    life_stage: str
+    slots: list[Slot]
+    coverage: pd.DataFrame  # species, life_stage, slot, label, state, level, counts, sources
     readiness: pd.DataFrame  # species, life_stage, readiness, available, total, gaps, supplied,
-    #                          covered_parameters (cells with any row), waits_on
-    most_wanted: pd.DataFrame  # parameter, species_made_ready, gaps_closed_alone, species_needing, species
+    #                          covered_slots (slots with any row), waits_on
+    most_wanted: pd.DataFrame  # slot, species_made_ready, gaps_closed_alone, species_needing, species
     sources: pd.DataFrame  # id, citation of every source behind a covered cell
 
     @property
     def under_studied(self) -> pd.DataFrame:
         """Species and stages ranked from least to most ready."""
-        ranked = self.readiness.sort_values(["readiness", "covered_parameters", "species"],
+        ranked = self.readiness.sort_values(["readiness", "covered_slots", "species"],
                                             ascending=[True, True, True], kind="stable")
         return ranked.reset_index(drop=True).assign(rank=lambda f: f.index + 1)
 
     def matrix(self, what: str = "state") -> pd.DataFrame:
-        """Species (and stage) × parameter, one of: state, level, n_values, n_sources, mark."""
-        wide = self.coverage.pivot(index=["species", "life_stage"], columns="parameter", values=what)
-        return wide[[p.id for p in self.parameters]]
+        """Species (and stage) × slot, one of: state, level, n_values, n_sources, mark."""
+        wide = self.coverage.pivot(index=["species", "life_stage"], columns="slot", values=what)
+        return wide[[p.id for p in self.slots]]
 
     def to_dict(self) -> dict:
         import json
 
         records = lambda f: json.loads(f.to_json(orient="records"))  # noqa: E731
-        return {"layout": self.layout, "stage": self.stage, "states": STATE_HELP,
-                "parameters": [{"id": p.id, "label": p.label, "compartments": list(p.compartments),
-                                "quantities": list(p.quantities)} for p in self.parameters],
+        return {"layout": self.layout, "life_stage": self.life_stage, "states": STATE_HELP,
+                "slots": [{"id": p.id, "label": p.label, "parameter": p.parameter, "compartment": p.compartment,
+                           "stored_compartments": list(p.stored), "quantities": list(p.quantities)}
+                          for p in self.slots],
                 "readiness": records(self.under_studied), "most_wanted": records(self.most_wanted),
                 "coverage": records(self.coverage), "sources": records(self.sources)}
 
@@ -119,8 +91,11 @@ def _rows(store, species: list[str] | None) -> pd.DataFrame:
     rows["has_value"] = rows["has_value"].astype(bool)
     rows["verified"] = rows["verified"].astype(bool)
     rows["has_uncertainty"] = rows["uncertainty"] != "none"
-    # relative: needs a body mass, cardiac output or body surface to become the model's number
-    rows["relative"] = rows["quantity_id"].isin(RELATIVE_QUANTITIES) | (rows["normalisation"] != "none")
+    # relative: a share of the body mass or cardiac output (vocab kind "fraction"), or a per-kg or per-m²
+    # form; it needs a body mass, cardiac output or body surface to become the model's number
+    shares = {r["id"] for r in store.query("SELECT id, fraction_of FROM quantities WHERE kind = 'fraction'")
+              if r["fraction_of"] in SCALED_SHARES}
+    rows["relative"] = rows["quantity_id"].isin(shares) | (rows["normalisation"] != "none")
     return rows
 
 
@@ -138,30 +113,35 @@ def _mark(state: str, rows: pd.DataFrame) -> str:
     return text
 
 
-def coverage_table(store, layout, species: list[str], stage: str) -> tuple[pd.DataFrame, list[Parameter]]:
-    params = layout_parameters(layout)
+def coverage_table(store, layout, species: list[str], life_stage: str) -> tuple[pd.DataFrame, list[Slot]]:
+    parts = {}
+    for row in store.query("SELECT id, part_of FROM compartments WHERE part_of IS NOT NULL ORDER BY id"):
+        parts.setdefault(row["part_of"], []).append(row["id"])
+    layout_slots = slots(layout, parts)
     rows = _rows(store, species)
-    keys = _species_stages(rows, species, stage)
-    # each (compartment, quantity) belongs to at most one parameter: a stored compartment sits in one
+    keys = _species_stages(rows, species, life_stage)
+    # each (compartment, quantity) belongs to at most one slot: a stored compartment sits in one
     # model compartment, and volume and flow quantities do not overlap
-    owner = {(c, q): p.id for p in params for c in p.compartments for q in p.quantities}
-    rows["parameter"] = [owner.get(cq) for cq in zip(rows["compartment_id"], rows["quantity_id"])]
-    rows = rows[rows["parameter"].notna()]
-    groups = {key: part for key, part in rows.groupby(["species_id", "life_stage_id", "parameter"])}
+    owner = {(c, q): p.id for p in layout_slots for c in p.stored for q in p.quantities}
+    rows["slot"] = [owner.get(cq) for cq in zip(rows["compartment_id"], rows["quantity_id"])]
+    rows = rows[rows["slot"].notna()]
+    groups = {key: part for key, part in rows.groupby(["species_id", "life_stage_id", "slot"])}
     empty = rows.iloc[0:0]
     records = []
     for sp, st in keys:
-        for p in params:
+        for p in layout_slots:
             both = groups.get((sp, st, p.id), empty)
             sel, gone = both[both["has_value"]], both[~both["has_value"]]
             state, lacking = cell_state(sel), []
-            if len(p.compartments) > 1 and len(sel):  # a lumped compartment stands as its worst part
-                by_part = {c: cell_state(sel[sel["compartment_id"] == c]) for c in p.compartments}
+            named = layout.compartments.get(p.compartment, [])
+            if len(named) > 1 and len(sel):  # a lumped compartment stands as its worst part
+                by_part = {c: cell_state(sel[sel["compartment_id"].isin(_with_parts(c, parts, named))])
+                           for c in named}
                 state = min(by_part.values(), key=STATES.index)
                 lacking = [c for c, s in by_part.items() if s == "absent"]
             mark = _mark(cell_state(sel), sel) + ("*" if lacking else "")
             records.append({
-                "species": sp, "life_stage": st, "parameter": p.id, "label": p.label, "state": state,
+                "species": sp, "life_stage": st, "slot": p.id, "label": p.label, "state": state,
                 "level": STATES.index(state), "mark": mark, "parts_lacking": ", ".join(lacking),
                 "n_values": len(sel),
                 "n_sources": sel["source_id"].nunique(), "n_verified": int(sel["verified"].sum()),
@@ -169,14 +149,18 @@ def coverage_table(store, layout, species: list[str], stage: str) -> tuple[pd.Da
                 "n_absolute": int((~sel["relative"]).sum()), "n_reported_missing": len(gone),
                 "sources": "; ".join(sorted(set(sel["source_id"]))),
             })
-    return pd.DataFrame.from_records(records), params
+    return pd.DataFrame.from_records(records), layout_slots
 
 
-def _species_stages(rows: pd.DataFrame, species: list[str], stage: str) -> list[tuple[str, str]]:
+def _with_parts(compartment: str, parts: dict[str, list[str]], named) -> set[str]:
+    return {compartment, *sub_parts(compartment, parts, exclude=set(named))}
+
+
+def _species_stages(rows: pd.DataFrame, species: list[str], life_stage: str) -> list[tuple[str, str]]:
     """(species, stage) pairs: the stage asked for, for every species; with stage "all", also
     every other stage that has rows."""
-    if stage != "all":
-        return [(sp, stage) for sp in species]
+    if life_stage != "all":
+        return [(sp, life_stage) for sp in species]
     keys = {(sp, "adult") for sp in species}
     keys |= set(map(tuple, rows[["species_id", "life_stage_id"]].drop_duplicates().to_numpy()))
     return sorted(keys)
@@ -187,9 +171,9 @@ def readiness_table(store, layout, keys: list[tuple[str, str]]) -> tuple[pd.Data
     records, tables = [], {}
     for sp, st in keys:
         table = store.parameter_set(sp, life_stage=st, layout=layout, fill="none").table
-        table = table[(table["compartment"] != "rest_of_body") & (table["fill"] != "not_applicable")]
+        table = table[(table["compartment"] != "rest_of_body") & (table["origin"] != "not_applicable")]
         tables[(sp, st)] = table
-        gap = table["fill"] == "gap"
+        gap = table["origin"] == "gap"
         records.append({"species": sp, "life_stage": st, "readiness": round(float((~gap).mean()), 4),
                         "available": int((~gap).sum()), "total": len(table),
                         "gaps": _names(table[gap]), "supplied": _names(table[~gap])})
@@ -201,55 +185,37 @@ def _names(table: pd.DataFrame) -> str:
                      for c, p in table[["compartment", "parameter"]].itertuples(index=False))
 
 
-def needed_for(table: pd.DataFrame, cover: dict[str, str], layout, params: list[Parameter]) -> dict:
-    """For each gap of one parameter set, the stored parameters whose curation it waits on.
+def needed_for(table: pd.DataFrame, cover: dict[str, str]) -> dict:
+    """For each gap of one parameter set, the slots whose curation it waits on.
 
-    A gap waits on its own parameter when nothing is stored for it, on body mass when the body
-    weight is a gap, on cardiac output when a flow is and cardiac output is a gap, and a liver flow
-    on the portal organs' flows when the layout keeps them apart (their flows come off the total).
+    Read from the set itself: a gap waits on each slot it rests on (``depends_on``) that is a gap in
+    the same set, and on its own slot when nothing is stored for it; when it waits on nothing else,
+    its own stored data do not yet give a number, and better data for it are wanted.
     """
-    by_model = {p.model: p.id for p in params if p.model}
-    fills = {(c, q): f for c, q, f in table[["compartment", "parameter", "fill"]].itertuples(index=False)}
-    bw_gap = fills.get(("whole_body", "body_weight")) == "gap"
-    co_gap = fills.get(("whole_body", "cardiac_output")) == "gap"
-    portal_models = [m for m, parts in layout.compartments.items() if set(parts) & PORTAL_ORGANS]
-    needs: dict[tuple[str, str], set[str]] = {}
-    for (comp, quantity), fill in fills.items():
-        if fill != "gap":
+    origins = dict(zip(table["slot"], table["origin"]))
+    needs: dict[str, set[str]] = {}
+    for slot, origin, depends in table[["slot", "origin", "depends_on"]].itertuples(index=False):
+        if origin != "gap":
             continue
-        own = by_model.get((comp, quantity))
-        need: set[str] = set()
-        if own and cover.get(own, "absent") == "absent":
-            need.add(own)
-        if bw_gap and own != "body_mass":
-            need.add("body_mass")
-        if quantity == "blood_flow" and co_gap:
-            need.add("cardiac_output")
-        if quantity == "blood_flow" and "liver" in layout.compartments.get(comp, []):
-            for model in portal_models:
-                if fills.get((model, "blood_flow")) == "gap":
-                    need.add(by_model[(model, "blood_flow")])
-        if quantity == "blood_flow" and layout.compartments.get(comp) == ["lung"]:
-            need.discard(own)  # lung flow is the cardiac output
-            need.add("cardiac_output")
-        if not need and own:  # data are stored but do not yet give a number: better data wanted
-            need.add(own)
-        needs[(comp, quantity)] = need
+        depends = depends.split("; ") if depends else []
+        need = {d for d in depends if d != slot and origins.get(d) == "gap"}
+        if slot in depends and slot in cover and (cover[slot] == "absent" or not need):
+            need.add(slot)
+        needs[slot] = need
     return needs
 
 
-def most_wanted_table(tables: dict, coverage: pd.DataFrame, layout,
-                      params: list[Parameter]) -> tuple[pd.DataFrame, dict]:
-    """Per parameter: species it would make ready alone, gaps it closes alone, species that need it.
+def most_wanted_table(tables: dict, coverage: pd.DataFrame, params: list[Slot]) -> tuple[pd.DataFrame, dict]:
+    """Per slot: species it would make ready alone, gaps it closes alone, species that need it.
     Also returns each (species, stage)'s full list of what it waits on."""
     waits: dict[tuple[str, str], list[str]] = {}
-    counts: dict[str, dict] = {p.id: {"parameter": p.id, "label": p.label, "species_made_ready": 0,
+    counts: dict[str, dict] = {p.id: {"slot": p.id, "label": p.label, "species_made_ready": 0,
                                       "gaps_closed_alone": 0, "species_needing": 0, "species": []}
-                               for p in params if p.model}
+                               for p in params}
     for (sp, st), table in tables.items():
         cells = coverage[(coverage["species"] == sp) & (coverage["life_stage"] == st)]
-        cover = dict(zip(cells["parameter"], cells["state"]))
-        needs = needed_for(table, cover, layout, params)
+        cover = dict(zip(cells["slot"], cells["state"]))
+        needs = needed_for(table, cover)
         union = set().union(*needs.values()) if needs else set()
         waits[(sp, st)] = [p.id for p in params if p.id in union]
         who = sp if st == "adult" else f"{sp} ({st})"
@@ -263,13 +229,13 @@ def most_wanted_table(tables: dict, coverage: pd.DataFrame, layout,
             counts[next(iter(union))]["species_made_ready"] += 1
     frame = pd.DataFrame.from_records(list(counts.values()))
     frame["species"] = frame["species"].map(lambda s: ", ".join(sorted(s)))
-    frame = frame.sort_values(["species_made_ready", "gaps_closed_alone", "species_needing", "parameter"],
+    frame = frame.sort_values(["species_made_ready", "gaps_closed_alone", "species_needing", "slot"],
                               ascending=[False, False, False, True], kind="stable")
     return frame[frame["species_needing"] > 0].reset_index(drop=True), waits
 
 
-def gap_report(store, species=None, stage: str = "adult", layout="whole_body") -> GapReport:
-    """Coverage, readiness and most-wanted parameters for the species asked for (default: all in the store)."""
+def gap_report(store, species=None, life_stage: str = "adult", layout="whole_body") -> GapReport:
+    """Coverage, readiness and most-wanted slots for the species asked for (default: all in the store)."""
     from .layouts import Layout, load_layout
 
     lay = layout if isinstance(layout, Layout) else load_layout(layout, set(store.ids("compartments")))
@@ -279,16 +245,16 @@ def gap_report(store, species=None, stage: str = "adult", layout="whole_body") -
         species = [species] if isinstance(species, str) else list(species)
         for sp in species:
             store.require("species", sp, "species")
-    if stage != "all":
-        store.require("life_stages", stage, "life stage")
-    coverage, params = coverage_table(store, lay, species, stage)
+    if life_stage != "all":
+        store.require("life_stages", life_stage, "life stage")
+    coverage, params = coverage_table(store, lay, species, life_stage)
     keys = list(dict.fromkeys(zip(coverage["species"], coverage["life_stage"])))
     readiness, tables = readiness_table(store, lay, keys)
     covered = coverage[coverage["n_values"] > 0].groupby(["species", "life_stage"]).size()
-    readiness["covered_parameters"] = [int(covered.get(k, 0)) for k in keys]
-    most_wanted, waits = most_wanted_table(tables, coverage, lay, params)
+    readiness["covered_slots"] = [int(covered.get(k, 0)) for k in keys]
+    most_wanted, waits = most_wanted_table(tables, coverage, params)
     readiness["waits_on"] = [", ".join(waits.get(k, [])) for k in keys]
     ids = sorted({s for text in coverage["sources"] for s in text.split("; ") if s})
     sources = store.frame(f"SELECT id, citation, doi FROM sources WHERE id IN ({', '.join('?' for _ in ids)}) "
                           "ORDER BY id", ids) if ids else pd.DataFrame(columns=["id", "citation", "doi"])
-    return GapReport(lay.name, stage, params, coverage, readiness, most_wanted, sources)
+    return GapReport(lay.name, life_stage, params, coverage, readiness, most_wanted, sources)

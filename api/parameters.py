@@ -4,24 +4,23 @@ from __future__ import annotations
 
 import json
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
 
 from .. import CAUTION
+from ..schema.model import (LIVER, PARAMETERS, PORTAL_ORGANS, SHARES_OF_A_WHOLE, has_own_flow, is_portal,
+                            is_pulmonary, parameter_of, slot_id)
 from .layouts import REST, Layout, load_layout
 from .pooling import Estimate
-from ..schema.anatomy import PORTAL_ORGANS
 from .resolve import SAME_BODY_WEIGHT, Resolved, Resolver
 
-FILLS = ("measured", "pooled", "scaled", "allometric", "gap", "not_applicable")
 FLOW_TOLERANCE = 0.05  # named systemic flows may exceed cardiac output by 5 % before the set is flagged
 REST_DENSITY = 1.0  # kg/L, stated on the rest_of_body volume wherever it is used
-UNITS = {"SI": {"volume": ("L", 1.0), "blood_flow": ("L/h", 1.0), "gfr": ("L/h", 1.0), "hematocrit": ("1", 1.0)},
-         "clinical": {"volume": ("mL", 1000.0), "blood_flow": ("mL/min", 1000.0 / 60.0),
-                      "gfr": ("mL/min", 1000.0 / 60.0), "hematocrit": ("1", 1.0)}}
-PHYSIOLOGY = {"gfr": "whole_body", "hematocrit": "blood"}  # extra numbers a PBPK model usually needs
+UNITS = {"SI": {p.id: (p.unit, 1.0) for p in PARAMETERS.values()},
+         "clinical": {p.id: p.clinical for p in PARAMETERS.values()}}
+PHYSIOLOGY = ("gfr", "hematocrit")  # whole-body numbers a PBPK model usually needs besides the compartments
 
 
 class ParameterSetError(ValueError):
@@ -30,11 +29,12 @@ class ParameterSetError(ValueError):
 
 @dataclass
 class Cell:
-    """One number of a parameter set, with how it was obtained."""
+    """One number of a parameter set, with how it was obtained (its origin: measured, pooled, scaled,
+    allometric, gap or not_applicable) and the slots whose data it rests on."""
 
     value: float | None
     unit: str
-    fill: str
+    origin: str
     sd: float | None = None
     se: float | None = None
     low: float | None = None
@@ -42,6 +42,7 @@ class Cell:
     sources: tuple[str, ...] = ()
     method: str = ""
     reason: str = ""  # for gaps
+    depends_on: tuple[str, ...] = ()  # slot ids (schema.model) whose curated data this number uses
 
     @classmethod
     def gap(cls, unit: str, reason: str) -> "Cell":
@@ -49,12 +50,15 @@ class Cell:
 
     def in_units(self, unit: str, factor: float) -> "Cell":
         mul = lambda x: None if x is None else x * factor  # noqa: E731
-        return Cell(mul(self.value), unit, self.fill, mul(self.sd), mul(self.se), mul(self.low), mul(self.high),
-                    self.sources, self.method, self.reason)
+        return replace(self, value=mul(self.value), unit=unit, sd=mul(self.sd), se=mul(self.se), low=mul(self.low),
+                       high=mul(self.high))
+
+    def resting_on(self, *slots: str) -> "Cell":
+        return replace(self, depends_on=tuple(dict.fromkeys(self.depends_on + slots)))
 
     def as_dict(self) -> dict:
         out = {"value": _round(self.value), "unit": self.unit, "sd": _round(self.sd), "se": _round(self.se),
-               "fill": self.fill, "sources": list(self.sources), "method": self.method}
+               "origin": self.origin, "sources": list(self.sources), "method": self.method}
         if self.low is not None:
             out["interval"] = [_round(self.low), _round(self.high)]
             out["interval_kind"] = ("95 % prediction interval" if "prediction interval" in self.method
@@ -70,40 +74,40 @@ def _round(x, digits=4):
     return float(f"{x:.{digits}g}")
 
 
-def _fill_for(resolved: Resolved, body_weight: float) -> str:
-    """measured/pooled only when every row is absolute and describes this body weight; else scaled."""
+def _origin_for(resolved: Resolved, body_mass: float) -> str:
+    """measured/pooled only when every row is absolute and describes this body mass; else scaled."""
     at = resolved.absolute_at
-    same = bool(at) and all(abs(m / body_weight - 1) < SAME_BODY_WEIGHT for m in at)
+    same = bool(at) and all(abs(m / body_mass - 1) < SAME_BODY_WEIGHT for m in at)
     if not same:
         return "scaled"
     return "measured" if resolved.estimate.n_studies == 1 else "pooled"
 
 
-def _cell(resolved: Resolved, factor: float, unit: str, body_weight: float | None, extra_method: str = "") -> Cell:
-    """A resolved estimate times ``factor``; ``body_weight`` None means nothing was scaled (a fraction)."""
+def _scaled_cell(resolved: Resolved, factor: float, unit: str, body_mass: float | None,
+                 extra_method: str = "") -> Cell:
+    """A resolved estimate times ``factor``; ``body_mass`` None means nothing was scaled (a fraction)."""
     if not resolved.ok:
         return Cell.gap(unit, resolved.reason)
     est: Estimate = resolved.estimate.scaled(factor)
     method = est.method + (f" ({'; '.join(resolved.notes)})" if resolved.notes else "") + extra_method
-    fill = ("measured" if est.n_studies == 1 else "pooled") if body_weight is None else \
-        _fill_for(resolved, body_weight)
-    return Cell(est.value, unit, fill, est.sd, est.se, est.low, est.high, est.sources, method)
+    origin = ("measured" if est.n_studies == 1 else "pooled") if body_mass is None else \
+        _origin_for(resolved, body_mass)
+    return Cell(est.value, unit, origin, est.sd, est.se, est.low, est.high, est.sources, method)
 
 
 def _sum_cells(cells: list[Cell], unit: str, what: str) -> Cell:
     """Lumped compartments: values add; standard errors add in quadrature; any gap makes a gap."""
-    gaps = [c for c in cells if c.fill == "gap"]
+    gaps = [c for c in cells if c.origin == "gap"]
     if gaps:
         return Cell.gap(unit, "; ".join(c.reason for c in gaps))
     if len(cells) == 1:
         return cells[0]
-    fills = {c.fill for c in cells}
-    fill = "scaled" if "scaled" in fills else "allometric" if "allometric" in fills else \
-        "pooled" if len(cells) > 1 else cells[0].fill
+    origins = {c.origin for c in cells}
+    origin = "scaled" if "scaled" in origins else "allometric" if "allometric" in origins else "pooled"
     ses = [c.se for c in cells]
     se = math.sqrt(sum(s * s for s in ses)) if all(s is not None for s in ses) else None
     sources = tuple(dict.fromkeys(s for c in cells for s in c.sources))
-    return Cell(sum(c.value for c in cells), unit, fill, None, se, None, None, sources, f"sum of {what}")
+    return Cell(sum(c.value for c in cells), unit, origin, None, se, None, None, sources, f"sum of {what}")
 
 
 @dataclass
@@ -112,14 +116,14 @@ class ParameterSet:
     life_stage: str
     sex: str | None
     layout: Layout
-    body_weight: Cell
+    body_mass: Cell
     cardiac_output: Cell
     volumes: dict[str, Cell]
     flows: dict[str, Cell]
     liver_flow: str  # what the liver's flow means in this set
     physiology: dict[str, Cell] = field(default_factory=dict)  # GFR and hematocrit
     checks: list[dict] = field(default_factory=list)
-    fill_policy: str = "none"
+    fill: str = "none"  # how gaps were filled: none, or allometric on request
     units: str = "SI"
 
     # ---- views -------------------------------------------------------------------------------
@@ -127,20 +131,20 @@ class ParameterSet:
     def compartments(self) -> list[str]:
         return list(self.layout.compartments) + [REST]
 
+    def cells(self):
+        """(compartment, parameter, cell) for every number of the set, whole-body ones first."""
+        yield "whole_body", "body_mass", self.body_mass
+        yield "whole_body", "cardiac_output", self.cardiac_output
+        for name, cell in self.physiology.items():
+            yield PARAMETERS[name].compartment, name, cell
+        for comp in self.compartments:
+            yield comp, "volume", self.volumes[comp]
+            yield comp, "blood_flow", self.flows[comp]
+
     @property
     def gaps(self) -> list[dict]:
-        out = []
-        for name, cell in (("body_weight", self.body_weight), ("cardiac_output", self.cardiac_output)):
-            if cell.fill == "gap":
-                out.append({"compartment": "whole_body", "quantity": name, "reason": cell.reason})
-        for name, cell in self.physiology.items():
-            if cell.fill == "gap":
-                out.append({"compartment": PHYSIOLOGY[name], "quantity": name, "reason": cell.reason})
-        for comp in self.compartments:
-            for quantity, cell in (("volume", self.volumes[comp]), ("blood_flow", self.flows[comp])):
-                if cell.fill == "gap":
-                    out.append({"compartment": comp, "quantity": quantity, "reason": cell.reason})
-        return out
+        return [{"compartment": comp, "quantity": parameter, "reason": cell.reason}
+                for comp, parameter, cell in self.cells() if cell.origin == "gap"]
 
     def _unit_cell(self, parameter: str, cell: Cell) -> Cell:
         unit, factor = UNITS[self.units][parameter]
@@ -148,17 +152,9 @@ class ParameterSet:
 
     @property
     def table(self) -> pd.DataFrame:
-        rows = [dict(compartment="whole_body", parameter="body_weight", **_flat(self.body_weight)),
-                dict(compartment="whole_body", parameter="cardiac_output",
-                     **_flat(self._unit_cell("blood_flow", self.cardiac_output)))]
-        for name, cell in self.physiology.items():
-            rows.append(dict(compartment=PHYSIOLOGY[name], parameter=name, **_flat(self._unit_cell(name, cell))))
-        for comp in self.compartments:
-            rows.append(dict(compartment=comp, parameter="volume",
-                             **_flat(self._unit_cell("volume", self.volumes[comp]))))
-            rows.append(dict(compartment=comp, parameter="blood_flow",
-                             **_flat(self._unit_cell("blood_flow", self.flows[comp]))))
-        return pd.DataFrame(rows)
+        return pd.DataFrame([dict(compartment=comp, parameter=parameter, slot=slot_id(comp, parameter),
+                                  **_flat(self._unit_cell(parameter, cell)))
+                             for comp, parameter, cell in self.cells()])
 
     def quantity(self, compartment: str, parameter: str):
         """One number as a pint Quantity (None for a gap)."""
@@ -176,9 +172,9 @@ class ParameterSet:
             "life_stage": self.life_stage,
             "sex": self.sex,
             "layout": self.layout.name,
-            "fill_policy": self.fill_policy,
-            "body_weight": self.body_weight.as_dict(),
-            "cardiac_output": self._unit_cell("blood_flow", self.cardiac_output).as_dict(),
+            "fill": self.fill,
+            "body_mass": self.body_mass.as_dict(),
+            "cardiac_output": self._unit_cell("cardiac_output", self.cardiac_output).as_dict(),
             "liver_flow": self.liver_flow,
             "physiology": {name: self._unit_cell(name, cell).as_dict() for name, cell in self.physiology.items()},
             "compartments": [
@@ -207,29 +203,30 @@ class ParameterSet:
 
 def _flat(cell: Cell) -> dict:
     return {"value": cell.value if cell.value is not None else np.nan, "unit": cell.unit,
-            "sd": cell.sd, "se": cell.se, "low": cell.low, "high": cell.high, "fill": cell.fill,
-            "sources": "; ".join(cell.sources), "method": cell.method, "note": cell.reason}
+            "sd": cell.sd, "se": cell.se, "low": cell.low, "high": cell.high, "origin": cell.origin,
+            "sources": "; ".join(cell.sources), "method": cell.method, "note": cell.reason,
+            "depends_on": "; ".join(cell.depends_on)}
 
 
 # ---- assembly -------------------------------------------------------------------------------------
-def _body_weight(resolver: Resolver, body_weight) -> tuple[Cell, float | None]:
-    if body_weight is None:
-        bw = resolver.body_weight
+def _body_mass(resolver: Resolver, body_mass) -> tuple[Cell, float | None]:
+    if body_mass is None:
+        bw = resolver.body_mass
         if not bw.ok:
-            return Cell.gap("kg", bw.reason + "; give --body-weight"), None
+            return Cell.gap("kg", bw.reason + "; give a body mass").resting_on("body_mass"), None
         est = bw.estimate
-        fill = "measured" if est.n_studies == 1 else "pooled"
-        return Cell(est.value, "kg", fill, est.sd, est.se, est.low, est.high, est.sources,
-                    f"typical body mass: {est.method}"), est.value
+        origin = "measured" if est.n_studies == 1 else "pooled"
+        return Cell(est.value, "kg", origin, est.sd, est.se, est.low, est.high, est.sources,
+                    f"typical body mass: {est.method}", depends_on=("body_mass",)), est.value
     from ..units import UnitError, to_quantity
 
     try:
-        kg = float(to_quantity(body_weight, "kg").to("kg").magnitude)
+        kg = float(to_quantity(body_mass, "kg").to("kg").magnitude)
     except (UnitError, Exception) as exc:
-        raise ParameterSetError(f"body weight {body_weight!r} is not a mass: {exc}") from None
+        raise ParameterSetError(f"body mass {body_mass!r} is not a mass: {exc}") from None
     if not kg > 0 or not math.isfinite(kg):
-        raise ParameterSetError(f"body weight must be positive, got {body_weight!r}")
-    return Cell(kg, "kg", "measured", method="given by the user"), kg
+        raise ParameterSetError(f"body mass must be positive, got {body_mass!r}")
+    return Cell(kg, "kg", "given", method="given by the user"), kg
 
 
 def _volume_cells(resolver: Resolver, layout: Layout, bw: float | None) -> dict[str, Cell]:
@@ -238,52 +235,56 @@ def _volume_cells(resolver: Resolver, layout: Layout, bw: float | None) -> dict[
         members = []
         for part in parts:
             if bw is None:
-                members.append(Cell.gap("L", f"{part}: no body weight to scale to"))
+                members.append(Cell.gap("L", f"{part}: no body mass to scale to"))
                 continue
-            members.append(_cell(resolver.volume_per_kg(part), bw, "L", bw))
-        cells[comp] = _sum_cells(members, "L", " + ".join(parts))
+            members.append(_scaled_cell(resolver.volume_per_kg(part), bw, "L", bw))
+        cells[comp] = _sum_cells(members, "L", " + ".join(parts)).resting_on(slot_id(comp, "volume"), "body_mass")
     return cells
 
 
 def _flow_cells(resolver: Resolver, layout: Layout, co: Cell, bw: float | None) -> tuple[dict[str, Cell], str]:
     """Flows of each model compartment, and a sentence on what the liver's flow is."""
-    portal_models = [m for m, parts in layout.compartments.items() if set(parts) <= PORTAL_ORGANS]
+    portal_models = [m for m, parts in layout.compartments.items() if is_portal(parts)]
+    liver = next((m for m, parts in layout.compartments.items() if LIVER in parts), None)
     cells: dict[str, Cell] = {}
     for comp, parts in layout.compartments.items():
-        if parts == ["blood"]:
+        if not has_own_flow(parts):
             cells[comp] = Cell(None, "L/h", "not_applicable", method="blood carries the cardiac output")
             continue
-        if parts == ["lung"]:
-            cells[comp] = Cell(co.value, "L/h", co.fill, co.sd, co.se, co.low, co.high, co.sources,
-                               "pulmonary flow equals cardiac output") if co.fill != "gap" else \
-                Cell.gap("L/h", "lung flow equals cardiac output, which is a gap")
+        if is_pulmonary(parts):
+            cells[comp] = (replace(co, method="pulmonary flow equals cardiac output") if co.origin != "gap" else
+                           Cell.gap("L/h", "lung flow equals cardiac output, which is a gap")
+                           ).resting_on("cardiac_output", "body_mass")
             continue
         members = []
         for part in parts:
-            if portal_models == [] and part in PORTAL_ORGANS and comp != "liver" and "liver" in layout.members():
+            if not portal_models and part in PORTAL_ORGANS and comp != liver and liver is not None:
                 continue  # drains into the liver, whose total flow already carries it
-            if part == "lung":
+            if is_pulmonary([part]):
                 continue  # lung flow is the whole cardiac output, not a systemic branch
-            if co.fill == "gap":
+            if co.origin == "gap":
                 members.append(Cell.gap("L/h", f"{part}: cardiac output is a gap"))
                 continue
-            members.append(_cell(resolver.flow_fraction(part), co.value, "L/h", bw or 0.0,
-                                 extra_method=" × cardiac output"))
-        cells[comp] = _sum_cells(members, "L/h", " + ".join(parts)) if members else \
+            members.append(_scaled_cell(resolver.flow_fraction(part), co.value, "L/h", bw or 0.0,
+                                        extra_method=" × cardiac output"))
+        cell = _sum_cells(members, "L/h", " + ".join(parts)) if members else \
             Cell(0.0, "L/h", "not_applicable", method="flow counted within the liver's total hepatic flow")
-    liver = next((m for m, parts in layout.compartments.items() if "liver" in parts), None)
+        cells[comp] = cell.resting_on(slot_id(comp, "blood_flow"), "cardiac_output", "body_mass")
     if liver is None:
         return cells, "no liver compartment in this layout"
     if portal_models:
         portal = [cells[m] for m in portal_models]
         total = cells[liver]
-        if total.fill == "gap" or any(c.fill == "gap" for c in portal):
-            cells[liver] = Cell.gap("L/h", "hepatic artery flow needs total liver flow and every portal organ's flow")
+        needs = tuple(slot_id(m, "blood_flow") for m in portal_models)
+        if total.origin == "gap" or any(c.origin == "gap" for c in portal):
+            cells[liver] = Cell.gap("L/h", "hepatic artery flow needs total liver flow and every portal organ's "
+                                    "flow").resting_on(*total.depends_on, *needs)
         else:
             value = total.value - sum(c.value for c in portal)
             sources = tuple(dict.fromkeys(total.sources + tuple(s for c in portal for s in c.sources)))
             cells[liver] = Cell(value, "L/h", "scaled", None, None, None, None, sources,
-                                f"hepatic artery = total hepatic flow − {' − '.join(portal_models)}")
+                                f"hepatic artery = total hepatic flow − {' − '.join(portal_models)}",
+                                depends_on=total.depends_on + needs)
         return cells, (f"hepatic artery only: the liver also receives the outflow of {', '.join(portal_models)} "
                        "through the portal vein")
     return cells, ("total hepatic flow (hepatic artery + portal vein); portal organs lumped elsewhere are not "
@@ -291,30 +292,35 @@ def _flow_cells(resolver: Resolver, layout: Layout, co: Cell, bw: float | None) 
 
 
 def _close_balances(ps: ParameterSet) -> None:
-    bw, co = ps.body_weight, ps.cardiac_output
+    bw, co = ps.body_mass, ps.cardiac_output
     vols = [ps.volumes[c] for c in ps.layout.compartments]
-    vol_gaps = [c for c in ps.layout.compartments if ps.volumes[c].fill == "gap"]
-    if bw.fill == "gap" or vol_gaps:
+    vol_gaps = [c for c in ps.layout.compartments if ps.volumes[c].origin == "gap"]
+    vol_needs = tuple(d for v in vols for d in v.depends_on)
+    if bw.origin == "gap" or vol_gaps:
         ps.volumes[REST] = Cell.gap("L", "cannot close the mass balance: " +
-                                    (", ".join(vol_gaps) + " lack a volume" if vol_gaps else "no body weight"))
+                                    (", ".join(vol_gaps) + " lack a volume" if vol_gaps else "no body mass")
+                                    ).resting_on(*vol_needs)
     else:
         named = sum(v.value for v in vols)  # volumes in L; rest mass at 1 kg/L, stated below
         rest = bw.value / REST_DENSITY - named
-        ps.volumes[REST] = Cell(rest, "L", "scaled", method=f"body weight at {REST_DENSITY:g} kg/L minus the "
-                                "named compartments' volumes")
-        ps.checks.append(_check("volumes_within_body_weight", rest >= 0,
-                                f"named volumes {named:.4g} L against body weight {bw.value:.4g} kg "
+        ps.volumes[REST] = Cell(rest, "L", "scaled", method=f"body mass at {REST_DENSITY:g} kg/L minus the "
+                                "named compartments' volumes", depends_on=vol_needs)
+        ps.checks.append(_check("volumes_within_body_mass", rest >= 0,
+                                f"named volumes {named:.4g} L against body mass {bw.value:.4g} kg "
                                 f"(≈ {bw.value / REST_DENSITY:.4g} L at {REST_DENSITY:g} kg/L)"))
-    systemic = {c: f for c, f in ps.flows.items() if f.fill not in ("not_applicable",)
-                and ps.layout.compartments.get(c) != ["lung"]}
-    flow_gaps = [c for c, f in systemic.items() if f.fill == "gap"]
-    if co.fill == "gap" or flow_gaps:
+    systemic = {c: f for c, f in ps.flows.items() if f.origin != "not_applicable"
+                and not is_pulmonary(ps.layout.compartments.get(c, []))}
+    flow_gaps = [c for c, f in systemic.items() if f.origin == "gap"]
+    flow_needs = tuple(d for f in systemic.values() for d in f.depends_on)
+    if co.origin == "gap" or flow_gaps:
         ps.flows[REST] = Cell.gap("L/h", "cannot close the flow balance: " +
-                                  (", ".join(flow_gaps) + " lack a flow" if flow_gaps else "no cardiac output"))
+                                  (", ".join(flow_gaps) + " lack a flow" if flow_gaps else "no cardiac output")
+                                  ).resting_on(*flow_needs)
     else:
         named = sum(f.value for f in systemic.values())
         rest = co.value - named
-        ps.flows[REST] = Cell(rest, "L/h", "scaled", method="cardiac output minus the named systemic flows")
+        ps.flows[REST] = Cell(rest, "L/h", "scaled", method="cardiac output minus the named systemic flows",
+                              depends_on=flow_needs)
         ps.checks.append(_check("systemic_flows_within_cardiac_output", named <= co.value * (1 + FLOW_TOLERANCE),
                                 f"named systemic flows {named:.4g} L/h against cardiac output {co.value:.4g} L/h "
                                 f"(tolerance {FLOW_TOLERANCE:.0%})"))
@@ -328,15 +334,15 @@ def _check(name: str, ok: bool, detail: str) -> dict:
 
 def _source_sum_checks(resolver: Resolver, ps: ParameterSet) -> None:
     """Fractions given by one source (one group of subjects) should not exceed the whole."""
-    comps = ps.layout.members() - {"whole_body", "lung"}
-    for quantity, limit in (("tissue_mass_fraction", 1.0), ("blood_flow_fraction", 1.0 + 0.1)):
+    comps = ps.layout.members() - {"whole_body"} - {c for c in ps.layout.members() if is_pulmonary([c])}
+    for quantity, limit in SHARES_OF_A_WHOLE.items():
         groups: dict[tuple, dict[str, float]] = {}
         for r in resolver.all_rows:
             if r["quantity_id"] == quantity and r["compartment_id"] in comps:
                 key = (r["source_id"], r["sex"], r["strain"], r["age"])
                 groups.setdefault(key, {})[r["compartment_id"]] = r["value_canonical"]
         for (source, *_), by_comp in groups.items():
-            if quantity == "blood_flow_fraction" and "liver" in by_comp:  # total hepatic flow carries the portal organs
+            if parameter_of(quantity) == "blood_flow" and LIVER in by_comp:  # total hepatic flow carries the portal organs
                 by_comp = {c: v for c, v in by_comp.items() if c not in PORTAL_ORGANS}
             total = sum(by_comp.values())
             if total > limit:
@@ -345,8 +351,22 @@ def _source_sum_checks(resolver: Resolver, ps: ParameterSet) -> None:
                                         f"{total:.3f} (limit {limit:g})"))
 
 
-def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | None = None, body_weight=None,
-                  layout="whole_body", fill: str = "none", units: str = "SI") -> ParameterSet:
+def _body_mass_option(body_mass, body_weight):
+    if body_weight is not None:
+        import warnings
+
+        warnings.warn("body_weight= is renamed body_mass=; the old name goes in the next release",
+                      DeprecationWarning, stacklevel=3)
+        if body_mass is None:
+            return body_weight
+    return body_mass
+
+
+def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | None = None, body_mass=None,
+                  layout="whole_body", fill: str = "none", units: str = "SI", body_weight=None) -> ParameterSet:
+    """A layout's volumes and flows at one body mass (the species' typical one if not given), every gap
+    marked; ``fill="allometric"`` fills gaps across species, ``units`` is "SI" or "clinical"."""
+    body_mass = _body_mass_option(body_mass, body_weight)
     if fill not in ("none", "allometric"):
         raise ParameterSetError(f"fill must be 'none' or 'allometric', not {fill!r}")
     if units not in UNITS:
@@ -357,24 +377,30 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
     store.require("life_stages", life_stage, "life stage")
     lay = layout if isinstance(layout, Layout) else load_layout(layout, set(store.ids("compartments")))
     resolver = Resolver(store, species, life_stage, sex)
-    bw_cell, bw = _body_weight(resolver, body_weight)
+    bw_cell, bw = _body_mass(resolver, body_mass)
     if bw is None:
-        co = Cell.gap("L/h", "no body weight to scale cardiac output to")
+        co = Cell.gap("L/h", "no body mass to scale cardiac output to")
     else:
-        co = _cell(resolver.cardiac_output(bw), 1.0, "L/h", bw)
-    if fill == "allometric" and co.fill == "gap" and bw is not None:
+        co = _scaled_cell(resolver.cardiac_output(bw), 1.0, "L/h", bw)
+    if fill == "allometric" and co.origin == "gap" and bw is not None:
         from .fill import fill_cardiac_output
 
         co = fill_cardiac_output(store, species, life_stage, lay, bw) or co
+    co = co.resting_on("cardiac_output", "body_mass")
     volumes = _volume_cells(resolver, lay, bw)
     flows, liver_flow = _flow_cells(resolver, lay, co, bw)
-    physiology = {
-        "gfr": _cell(resolver.per_body_mass("gfr", "whole_body"), bw, "L/h", bw) if bw is not None
-        else Cell.gap("L/h", "no body weight to scale GFR to"),
-        "hematocrit": _cell(resolver.fraction("hematocrit", "blood"), 1.0, "1", None),
-    }
+    physiology = {}
+    for name in PHYSIOLOGY:
+        declared, resolved = PARAMETERS[name], resolver.resolve(name)
+        if declared.resolved_as.startswith("fraction"):  # a share (hematocrit): not scaled to a body mass
+            physiology[name] = _scaled_cell(resolved, 1.0, declared.unit, None).resting_on(name)
+        elif bw is None:
+            physiology[name] = Cell.gap(declared.unit, f"no body mass to scale {declared.label} to"
+                                        ).resting_on(name, "body_mass")
+        else:
+            physiology[name] = _scaled_cell(resolved, bw, declared.unit, bw).resting_on(name, "body_mass")
     ps = ParameterSet(species, life_stage, sex, lay, bw_cell, co, volumes, flows, liver_flow, physiology,
-                      fill_policy=fill, units=units)
+                      fill=fill, units=units)
     if fill == "allometric":
         from .fill import fill_allometric
 
@@ -392,19 +418,13 @@ def resolve_parameter(store, species: str, compartment: str, parameter: str, *, 
                       sex: str | None = None):
     """The rows behind one stored compartment's parameter and how they combine, before scaling.
 
-    ``parameter`` is "volume" (result in L per kg body weight), "blood_flow" (fraction of cardiac
-    output), "cardiac_output" (L/h per kg body weight) or "body_weight" (kg). The returned
-    ``Resolved`` has ``estimate`` (value, se, method, sources), ``rows`` (each curated row with
-    its route and its value in the combined form) and ``reason`` for a gap.
+    ``parameter`` is one of ``schema.model.PARAMETERS`` (volume, blood_flow, cardiac_output, gfr,
+    hematocrit, body_mass); the result is in that parameter's ``resolved_as`` form. The returned
+    ``Resolved`` has ``estimate`` (value, se, method, sources), ``rows`` (each curated row with its
+    route and its value in the combined form) and ``reason`` for a gap.
     """
+    if parameter not in PARAMETERS or PARAMETERS[parameter].computed:
+        choices = ", ".join(p for p, d in PARAMETERS.items() if not d.computed)
+        raise ParameterSetError(f"parameter must be one of {choices}, not {parameter!r}")
     store.require("species", species, "species")
-    resolver = Resolver(store, species, life_stage, sex)
-    if parameter == "volume":
-        return resolver.volume_per_kg(compartment)
-    if parameter == "blood_flow":
-        return resolver.flow_fraction(compartment)
-    if parameter == "cardiac_output":
-        return resolver.cardiac_output(1.0)
-    if parameter == "body_weight":
-        return resolver.body_weight
-    raise ParameterSetError(f"parameter must be volume, blood_flow, cardiac_output or body_weight, not {parameter!r}")
+    return Resolver(store, species, life_stage, sex).resolve(parameter, compartment)

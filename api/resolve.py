@@ -16,15 +16,12 @@ from collections import defaultdict
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 
-from ..schema.anatomy import FLUID_VOLUME
+from ..schema.model import FLUID_VOLUME, PARAMETERS, routes, summable_parts
 from .pooling import Estimate, pool
 
 ROW_COLUMNS = ("source_id, row_id, compartment_id, quantity_id, normalisation, value_canonical, sd_canonical, "
                "n, subject_body_mass_kg, sex, strain, age, verified, file, line")
-VOLUME_ROUTES = ["tissue_volume", "tissue_mass", "tissue_mass_fraction"]
-FLOW_ROUTES = ["blood_flow_fraction", "blood_flow"]
-ABSOLUTE_ROUTES = {"tissue_volume", "tissue_mass", "blood_volume", "plasma_volume", "blood_flow", "cardiac_output"}
-SKIP_AS_PART = {"hepatic_artery", "portal_vein"}  # vessels carry the whole's flow, they are not extra tissue
+SAME_SUBJECTS = ("source_id", "sex", "strain", "age")  # rows of one source describing the same animals
 SAME_BODY_WEIGHT = 0.02  # relative difference under which rows describe the requested body weight
 NAN = float("nan")
 
@@ -44,13 +41,13 @@ class Resolved:
         return self.estimate is not None
 
 
-def _num(x) -> float:
+def _float_or_nan(x) -> float:
     return NAN if x is None else float(x)
 
 
 def _pool(rows: list[dict]) -> Estimate:
     """Pool rows that carry ``_value`` and ``_sd`` in the target form."""
-    return pool([r["_value"] for r in rows], [_num(r["_sd"]) for r in rows], [_num(r["n"]) for r in rows],
+    return pool([r["_value"] for r in rows], [_float_or_nan(r["_sd"]) for r in rows], [_float_or_nan(r["n"]) for r in rows],
                 [r["source_id"] for r in rows])
 
 
@@ -87,7 +84,7 @@ class Resolver:
 
     # ---- body weight -------------------------------------------------------------------------
     @cached_property
-    def body_weight(self) -> Resolved:
+    def body_mass(self) -> Resolved:
         rows = [dict(r, _value=r["value_canonical"], _sd=r["sd_canonical"], _route="body_mass")
                 for r in self.rows("body_mass", "whole_body")]
         if rows:
@@ -107,7 +104,7 @@ class Resolver:
         """The row's subjects' body mass, else the species' typical body mass."""
         if row["subject_body_mass_kg"] is not None:
             return row["subject_body_mass_kg"]
-        return self.body_weight.estimate.value if self.body_weight.ok else NAN
+        return self.body_mass.estimate.value if self.body_mass.ok else NAN
 
     # ---- densities ---------------------------------------------------------------------------
     @cached_property
@@ -132,28 +129,47 @@ class Resolver:
             return est.value, f"density {est.value:.3g} kg/L from other species", est.sources
         return 1.0, "density 1 kg/L assumed: no density of this tissue in the store", ()
 
+    # ---- the vocabulary: which quantity is a share of what --------------------------------------
+    @cached_property
+    def _vocab(self) -> dict[str, dict]:
+        return {r["id"]: dict(r) for r in self.store.query("SELECT id, kind, fraction_of, canonical_unit "
+                                                           "FROM quantities")}
+
+    @cached_property
+    def _share_of(self) -> dict[str, str | None]:
+        """quantity → what it is a fraction of (vocab ``fraction_of`` for kind ``fraction``), else None."""
+        return {q: (v["fraction_of"] if v["kind"] == "fraction" else None) for q, v in self._vocab.items()}
+
+    def _is_volume(self, quantity: str) -> bool:
+        """A volume needs no density to become one (vocab canonical unit in litres)."""
+        return self._vocab.get(quantity, {}).get("canonical_unit") == "L"
+
+    def _is_absolute(self, row: dict) -> bool:
+        return row["normalisation"] == "none" and self._share_of.get(row["quantity_id"]) is None
+
     # ---- volumes -----------------------------------------------------------------------------
     def volume_per_kg(self, compartment: str) -> Resolved:
-        """Volume of one stored compartment per kg body weight (L/kg)."""
-        if compartment in FLUID_VOLUME:
-            rows = self._per_body_mass(self.rows(FLUID_VOLUME[compartment], compartment), FLUID_VOLUME[compartment])
-            if rows:
-                return self._resolved(rows, [])
-        density, density_note, density_sources = self.density(compartment)
+        """Volume of one stored compartment per kg body mass (L/kg), through its most direct route:
+        a volume, a fluid volume, a mass over the tissue density, or a share of body mass over it."""
+        preference = list(routes("volume", compartment))
+        density, density_note, density_sources = (1.0, "", ()) if compartment in FLUID_VOLUME else \
+            self.density(compartment)
         candidates = []
-        for r in self.rows("tissue_volume", compartment):
-            per = 1.0 if r["normalisation"] == "body_mass" else 1.0 / self.subject_mass(r)
-            candidates.append(self._routed(r, "tissue_volume", per))
-        for r in self.rows("tissue_mass", compartment):
-            candidates.append(self._routed(r, "tissue_mass", 1.0 / self.subject_mass(r) / density))
-        for r in self.rows("tissue_mass_fraction", compartment):
-            candidates.append(self._routed(r, "tissue_mass_fraction", 1.0 / density))
+        for quantity in preference:
+            by_volume = self._is_volume(quantity)
+            for r in self.rows(quantity, compartment):
+                if self._share_of.get(quantity) == "body_mass":
+                    per = 1.0
+                else:
+                    per = 1.0 if r["normalisation"] == "body_mass" else 1.0 / self.subject_mass(r)
+                candidates.append(self._routed(r, quantity, per if by_volume else per / density))
         if not candidates:
             return self._from_parts(compartment, self.volume_per_kg, "volume, mass or mass fraction")
-        rows = [r for r in _one_route_per_source(candidates, VOLUME_ROUTES) if not math.isnan(r["_value"])]
+        rows = [r for r in _one_route_per_source(candidates, preference) if not math.isnan(r["_value"])]
         if not rows:
             return _gap(f"{compartment} masses lack the subjects' body mass")
-        notes = [] if all(r["_route"] == "tissue_volume" for r in rows) else [density_note]
+        by_mass = [r for r in rows if not self._is_volume(r["_route"])]
+        notes = [density_note] if by_mass else []
         resolved = self._resolved(rows, notes)
         if density_sources and notes:
             resolved.estimate = replace(resolved.estimate, sources=tuple(
@@ -174,9 +190,29 @@ class Resolver:
         return out
 
     def _resolved(self, rows: list[dict], notes: list[str]) -> Resolved:
-        absolute = [r for r in rows if r["normalisation"] == "none" and r["_route"] in ABSOLUTE_ROUTES]
+        absolute = [r for r in rows if self._is_absolute(r)]
         at = [self.subject_mass(r) for r in absolute] if len(absolute) == len(rows) else []
         return Resolved(_pool(rows), rows, notes, at)
+
+    # ---- one parameter, as the declaration names it -----------------------------------------------
+    def resolve(self, parameter: str, compartment: str | None = None) -> Resolved:
+        """One parameter of one stored compartment, pooled in the form ``PARAMETERS[parameter].resolved_as``
+        (whole-body parameters take their fixed compartment; cardiac output is given at 1 kg)."""
+        declared = PARAMETERS[parameter]
+        if declared.computed:
+            return _gap(f"{parameter} is computed from {declared.computed}, not resolved from rows")
+        compartment = declared.compartment or compartment
+        if parameter == "body_mass":
+            return self.body_mass
+        if parameter == "cardiac_output":
+            return self.cardiac_output(1.0)
+        if parameter == "volume":
+            return self.volume_per_kg(compartment)
+        if parameter == "blood_flow":
+            return self.flow_fraction(compartment)
+        if self._share_of.get(declared.routes[0]) is not None:
+            return self.fraction(declared.routes[0], compartment)
+        return self.per_body_mass(declared.routes[0], compartment)
 
     # ---- whole-body rates and blood fractions ------------------------------------------------
     def per_body_mass(self, quantity: str, compartment: str) -> Resolved:
@@ -200,10 +236,10 @@ class Resolver:
         rows = [r for r in self.rows("cardiac_output", "whole_body") if r["normalisation"] in ("none", "body_mass")]
         return [dict(r, _mass=self.subject_mass(r)) for r in self._per_body_mass(rows, "cardiac_output")]
 
-    def cardiac_output(self, body_weight: float) -> Resolved:
+    def cardiac_output(self, body_mass: float) -> Resolved:
         """Cardiac output (L/h) at a body weight: the species' own per-kg data, or its own allometry."""
-        if body_weight in self._co_cache:
-            return self._co_cache[body_weight]
+        if body_mass in self._co_cache:
+            return self._co_cache[body_mass]
         rows = self.cardiac_output_rows
         if not rows:
             result = _gap(f"no cardiac output stored for {self.species} ({self.life_stage})")
@@ -211,20 +247,20 @@ class Resolver:
             absolute = [r for r in rows if r["normalisation"] == "none"]
             masses = sorted({r["_mass"] for r in absolute})
             if len(absolute) >= 3 and len(masses) >= 3 and masses[-1] / masses[0] >= 2:
-                result = self._within_species_fit(absolute, body_weight)
+                result = self._within_species_fit(absolute, body_mass)
             else:
                 resolved = self._resolved(rows, [])
-                resolved.estimate = resolved.estimate.scaled(body_weight)
+                resolved.estimate = resolved.estimate.scaled(body_mass)
                 result = resolved
-        self._co_cache[body_weight] = result
+        self._co_cache[body_mass] = result
         return result
 
-    def _within_species_fit(self, absolute: list[dict], body_weight: float) -> Resolved:
+    def _within_species_fit(self, absolute: list[dict], body_mass: float) -> Resolved:
         from .allometry import fit_power_law
 
         fit = fit_power_law([r["_mass"] for r in absolute], [r["value_canonical"] for r in absolute],
                             [r["source_id"] for r in absolute])
-        value, low, high = fit.predict(body_weight)
+        value, low, high = fit.predict(body_mass)
         est = Estimate(value, None, None, low, high,
                        f"within-species allometry over {len(absolute)} rows: {fit.a:.3g}·BW^{fit.b:.3f} "
                        "(95 % prediction interval)", len(absolute),
@@ -233,22 +269,42 @@ class Resolver:
 
     # ---- blood flows -------------------------------------------------------------------------
     def flow_fraction(self, compartment: str) -> Resolved:
-        """Blood flow of one stored compartment as a fraction of cardiac output."""
-        candidates = [self._routed(r, "blood_flow_fraction", 1.0)
-                      for r in self.rows("blood_flow_fraction", compartment)]
-        for r in self.rows("blood_flow", compartment):
-            if r["normalisation"] != "none":
-                continue
-            co = self.cardiac_output(self.subject_mass(r)) if not math.isnan(self.subject_mass(r)) else None
-            if co is not None and co.ok:
-                candidates.append(self._routed(r, "blood_flow", 1.0 / co.estimate.value))
+        """Blood flow of one stored compartment as a fraction of cardiac output. An absolute flow is
+        divided by the cardiac output of the same source and subjects when the source gives one, else
+        by the species' cardiac output at the subjects' body mass (said on the row)."""
+        preference = list(routes("blood_flow"))
+        candidates = []
+        for quantity in preference:
+            for r in self.rows(quantity, compartment):
+                if self._share_of.get(quantity) == "cardiac_output":
+                    candidates.append(self._routed(r, quantity, 1.0))
+                elif r["normalisation"] == "none":
+                    co, how = self._cardiac_output_for(r)
+                    if co is not None:
+                        candidates.append(dict(self._routed(r, quantity, 1.0 / co), _over=how))
         if not candidates:
-            if any(r["normalisation"] == "none" for r in self.rows("blood_flow", compartment)):
+            if any(r["normalisation"] == "none" for q in preference if self._share_of.get(q) is None
+                   for r in self.rows(q, compartment)):
                 return _gap(f"{compartment} flows are absolute and {self.species} has no cardiac output "
                             "to turn them into fractions")
             return self._from_parts(compartment, self.flow_fraction, "blood flow")
-        rows = _one_route_per_source(candidates, FLOW_ROUTES)
-        return self._resolved(rows, [])
+        rows = _one_route_per_source(candidates, preference)
+        notes = sorted({r["_over"] for r in rows if "_over" in r})
+        return self._resolved(rows, notes)
+
+    def _cardiac_output_for(self, row: dict) -> tuple[float | None, str]:
+        """The cardiac output (L/h) an absolute flow row is a share of."""
+        own = [r for r in self.rows("cardiac_output", "whole_body")
+               if r["normalisation"] == "none" and all(r[k] == row[k] for k in SAME_SUBJECTS)]
+        if own:
+            return sum(r["value_canonical"] for r in own) / len(own), "absolute flows over their own source's cardiac output"
+        mass = self.subject_mass(row)
+        if math.isnan(mass):
+            return None, ""
+        co = self.cardiac_output(mass)
+        if not co.ok:
+            return None, ""
+        return co.estimate.value, "absolute flows over the species' cardiac output at the subjects' body mass"
 
     # ---- wholes from parts -------------------------------------------------------------------
     @cached_property
@@ -261,7 +317,7 @@ class Resolver:
     def _from_parts(self, compartment: str, resolve, what: str) -> Resolved:
         """A whole without rows of its own is the sum of its parts, when every part has data."""
         gap = _gap(f"no {what} of {compartment} for {self.species} ({self.life_stage})")
-        parts = [p for p in self._parts.get(compartment, []) if p not in SKIP_AS_PART]
+        parts = summable_parts(compartment, self._parts)
         if not parts:
             return gap
         resolved = {p: resolve(p) for p in parts}

@@ -24,7 +24,7 @@ def _check(status: int, what: str) -> None:
 
 
 def _notes(cell, label: str) -> str:
-    parts = [f"{label}: fill {cell.fill}"]
+    parts = [f"{label}: origin {cell.origin}"]
     if cell.sources:
         parts.append("sources " + ", ".join(cell.sources))
     if cell.method:
@@ -68,7 +68,7 @@ def parameter_set_to_sbml(ps) -> str:
             p.setValue(float(cell.value))
         p.setNotes(_notes(cell, pid))
 
-    parameter("body_weight", ps.body_weight)
+    parameter("body_mass", ps.body_mass)
     parameter("cardiac_output", ps.cardiac_output)
     for comp in ps.compartments:
         volume, flow = ps.volumes[comp], ps.flows[comp]
@@ -80,6 +80,6 @@ def parameter_set_to_sbml(ps) -> str:
         if volume.value is not None:
             c.setSize(float(volume.value))
         c.setNotes(_notes(volume, f"volume of {comp}"))
-        if flow.fill != "not_applicable":
+        if flow.origin != "not_applicable":
             parameter(f"blood_flow_{comp}", flow)
     return libsbml.writeSBMLToString(doc)

@@ -101,11 +101,11 @@ class Store:
 
         return parameter_set(self, species, **options)
 
-    def gap_report(self, species=None, *, stage: str = "adult", layout="whole_body"):
+    def gap_report(self, species=None, *, life_stage: str = "adult", layout="whole_body"):
         """Coverage, readiness and most-wanted parameters; see :func:`bodyplan.api.gaps.gap_report`."""
         from .gaps import gap_report
 
-        return gap_report(self, species, stage=stage, layout=layout)
+        return gap_report(self, species, life_stage=life_stage, layout=layout)
 
     def allometry(self, quantity: str, **options):
         """Cross-species power-law fit; see :func:`bodyplan.api.allometry.allometry`."""

@@ -7,10 +7,12 @@ with every row it used and the route that row took.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 
 import pandas as pd
+
+from ..schema.model import PARAMETERS, parameter_of
+from .jsonable import json_scalar
 
 ROW_COLUMNS = ["compartment", "source", "citation", "locator", "row_id", "sex", "strain", "age", "value", "unit",
                "value_canonical", "unit_canonical", "uncertainty", "spread", "low", "high", "sd_canonical", "n",
@@ -38,30 +40,9 @@ class Trace:
                 "combined": self.combined, "note": self.note, "caution": CAUTION}
 
 
-PARAMETERS = {  # curated quantity → the parameter-set parameter its rows feed, and that parameter's unit
-    "tissue_volume": ("volume", "L per kg body weight"),
-    "tissue_mass": ("volume", "L per kg body weight"),
-    "tissue_mass_fraction": ("volume", "L per kg body weight"),
-    "blood_volume": ("volume", "L per kg body weight"),
-    "plasma_volume": ("volume", "L per kg body weight"),
-    "blood_flow": ("blood_flow", "fraction of cardiac output"),
-    "blood_flow_fraction": ("blood_flow", "fraction of cardiac output"),
-    "cardiac_output": ("cardiac_output", "L/h per kg body weight"),
-    "body_mass": ("body_weight", "kg"),
-}
-
-
-def _plain(x):
-    if isinstance(x, float) and math.isnan(x):
-        return None
-    if isinstance(x, (list, tuple)):
-        return list(x)
-    return x.item() if hasattr(x, "item") else x
-
-
 def estimate_dict(estimate) -> dict:
     """The fields of a combined estimate that a curator reads (value, se, sd, range, method, sources)."""
-    return {name: _plain(getattr(estimate, name, None)) for name in ESTIMATE_FIELDS}
+    return {name: json_scalar(getattr(estimate, name, None)) for name in ESTIMATE_FIELDS}
 
 
 def trace(store, species: str, quantity: str, compartment: str | None = None, *, life_stage: str = "adult",
@@ -81,13 +62,15 @@ def trace(store, species: str, quantity: str, compartment: str | None = None, *,
         result.note = (f"no curated rows for {species} {life_stage} {quantity}"
                        f"{' in ' + compartment if compartment else ''}: a gap")
         return result
-    if quantity not in PARAMETERS:
+    parameter = parameter_of(quantity)
+    if parameter is None:
         result.note = f"parameter sets do not use {quantity}; the rows are shown uncombined"
         return result
     from .parameters import resolve_parameter  # the parameter set's own rules, so the numbers are its numbers
 
-    parameter, unit = PARAMETERS[quantity]
-    places = ["whole_body"] if parameter in ("cardiac_output", "body_weight") else \
+    declared = PARAMETERS[parameter]
+    unit = declared.resolved_as
+    places = [declared.compartment] if declared.compartment else \
         sorted(set(frame["compartment"]) if compartment is None else {compartment})
     for place in places:
         resolved = resolve_parameter(store, species, place, parameter, life_stage=life_stage, sex=sex)
@@ -107,6 +90,6 @@ def combination(compartment: str, parameter: str, unit: str, resolved) -> dict:
     entry["reason"] = resolved.reason or None
     entry["rows_used"] = [{"source": r.get("source_id"), "row_id": r.get("row_id"),
                            "quantity": r.get("quantity_id"), "compartment": r.get("compartment_id"),
-                           "route": r.get("_route"), "value_in_unit": _plain(r.get("_value")),
+                           "route": r.get("_route"), "value_in_unit": json_scalar(r.get("_value")),
                            "at": f"{r.get('file')}:{r.get('line')}"} for r in resolved.rows]
     return entry

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from ..schema.anatomy import PORTAL_ORGANS
+from ..schema.model import PORTAL_ORGANS
 from ..units import UnitError, conversion
 from .findings import Findings
 from .read import CuratedTree

@@ -212,7 +212,7 @@ def test_trace_numbers_are_the_parameter_sets(store_path):
     store = open_store(store_path)
     layout = str(FIXTURE / "layouts" / "organs.toml")
     dog = store.parameter_set("dog", layout=layout)
-    bw = dog.body_weight.value
+    bw = dog.body_mass.value
     combined = {c["compartment"]: c for c in trace(store, "dog", "tissue_mass").combined}
     assert set(combined) == {"kidney", "liver"}
     for organ, entry in combined.items():
@@ -225,7 +225,7 @@ def test_trace_numbers_are_the_parameter_sets(store_path):
     assert [r["at"] for r in combined["liver"]["rows_used"]] == [
         "values/testa2000.csv:7", "values/testb2001.csv:5", "values/testc2002.csv:6"]
 
-    human = store.parameter_set("human", body_weight="70 kg", layout=layout)
+    human = store.parameter_set("human", body_mass="70 kg", layout=layout)
     [co] = trace(store, "human", "cardiac_output").combined
     assert co["value"] * 70 == pytest.approx(human.cardiac_output.value, rel=1e-12)
     assert co["se"] * 70 == pytest.approx(human.cardiac_output.se, rel=1e-12)
@@ -253,13 +253,20 @@ def test_trace_of_nothing_is_a_gap(store_path):
     assert result.note == "no curated rows for rat adult tissue_mass in heart: a gap"
 
 
-def test_trace_says_when_parameter_sets_do_not_use_a_quantity(store_path):
+def test_trace_follows_the_model_declaration(store_path):
     from bodyplan.api import open_store
     from bodyplan.api.trace import trace
 
-    result = trace(open_store(store_path), "human", "hematocrit")
-    assert result.combined == [] and "do not use hematocrit" in result.note
-    assert list(result.rows["value"]) == [44.0]
+    from bodyplan.schema.model import parameter_of
+
+    store = open_store(store_path)
+    result = trace(store, "human", "hematocrit")  # hematocrit joined the sets: traced as they pool it
+    assert list(result.rows["value"]) == [44.0] and list(result.rows["used"]) == [True]
+    [combined] = result.combined
+    assert combined["value"] == pytest.approx(0.44) and combined["unit"] == "fraction of blood volume"
+    organs = store.parameter_set("human", layout=str(FIXTURE / "layouts" / "organs.toml"))
+    assert combined["value"] == pytest.approx(organs.physiology["hematocrit"].value)
+    assert parameter_of("milk_yield") is None and parameter_of("urine_flow") is None
 
 
 # --- DEVELOPERS.md stays true ----------------------------------------------------------------------

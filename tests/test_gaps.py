@@ -17,10 +17,11 @@ import pandas as pd
 import pytest
 
 import bodyplan
-from bodyplan.api.gaps import STATES, gap_report, layout_parameters, needed_for
+from bodyplan.api.gaps import STATES, gap_report, needed_for
 from bodyplan.api.layouts import Layout, load_layout
 from bodyplan.api.locate import bundled_data_dir
 from bodyplan.ingest import build
+from bodyplan.schema.model import slots
 
 EMPTY = "test_species_without_data"
 
@@ -49,13 +50,15 @@ def sql_count(store, species, stage, compartments, quantities):
     return tuple(row)
 
 
-def sql_state(store, species, stage, compartment, quantities):
+def sql_state(store, species, stage, compartments, quantities):
     """A cell's state straight from SQL, written apart from the report's own code."""
-    marks = ", ".join("?" for _ in quantities)
+    compartments = [compartments] if isinstance(compartments, str) else list(compartments)
+    marks = lambda xs: ", ".join("?" for _ in xs)  # noqa: E731
     absolute = "quantity_id NOT IN ('tissue_mass_fraction', 'blood_flow_fraction') AND normalisation = 'none'"
-    base = (f"FROM curated_values WHERE species_id = ? AND life_stage_id = ? AND compartment_id = ? "
-            f"AND quantity_id IN ({marks}) AND value IS NOT NULL")
-    args = (species, stage, compartment, *quantities)
+    base = (f"FROM curated_values WHERE species_id = ? AND life_stage_id = ? "
+            f"AND compartment_id IN ({marks(compartments)}) AND quantity_id IN ({marks(quantities)}) "
+            "AND value IS NOT NULL")
+    args = (species, stage, *compartments, *quantities)
     if not store.conn.execute(f"SELECT count(*) {base}", args).fetchone()[0]:
         return "absent"
     if not store.conn.execute(f"SELECT count(*) {base} AND {absolute}", args).fetchone()[0]:
@@ -74,26 +77,26 @@ def test_every_species_is_in_the_report_and_empty_ones_score_zero(store, report)
     assert sorted(report.readiness["species"]) == sorted(species)
     assert set(report.coverage["species"]) == set(species)
     empty = report.readiness.set_index("species").loc[EMPTY]
-    assert empty["readiness"] == 0 and empty["available"] == 0 and empty["covered_parameters"] == 0
+    assert empty["readiness"] == 0 and empty["available"] == 0 and empty["covered_slots"] == 0
     cells = report.coverage[report.coverage["species"] == EMPTY]
-    assert len(cells) == len(report.parameters) and set(cells["state"]) == {"absent"}
+    assert len(cells) == len(report.slots) and set(cells["state"]) == {"absent"}
     # the under-studied ranking starts with species that have nothing
     assert report.under_studied.iloc[0]["readiness"] == 0
 
 
 def test_coverage_counts_match_sql(store, report):
     """Each cell's value and source counts equal a direct count over curated_values."""
-    params = {p.id: p for p in report.parameters}
+    params = {p.id: p for p in report.slots}
     for cell in report.coverage.itertuples(index=False):
-        p = params[cell.parameter]
-        n_values, n_sources = sql_count(store, cell.species, cell.life_stage, p.compartments, p.quantities)
-        assert (cell.n_values, cell.n_sources) == (n_values, n_sources), (cell.species, cell.parameter)
+        p = params[cell.slot]
+        n_values, n_sources = sql_count(store, cell.species, cell.life_stage, p.stored, p.quantities)
+        assert (cell.n_values, cell.n_sources) == (n_values, n_sources), (cell.species, cell.slot)
     # the same for a few cells written out by hand, independent of the report's own mapping
     for species in ("human", "rat", "dog"):
-        liver = report.coverage.query("species == @species and parameter == 'liver.volume'").iloc[0]
+        liver = report.coverage.query("species == @species and slot == 'liver.volume'").iloc[0]
         assert liver["n_values"] == sql_count(store, species, "adult", ["liver"],
                                               ["tissue_mass", "tissue_mass_fraction", "tissue_volume"])[0]
-        co = report.coverage.query("species == @species and parameter == 'cardiac_output'").iloc[0]
+        co = report.coverage.query("species == @species and slot == 'cardiac_output'").iloc[0]
         assert co["n_values"] == sql_count(store, species, "adult", ["whole_body"], ["cardiac_output"])[0]
     assert report.coverage["n_values"].sum() > 0
 
@@ -113,21 +116,21 @@ def test_cell_states_follow_their_definitions(store, report):
             assert cell.n_verified > 0 and cell.n_with_uncertainty > 0
         if cell.state == "several sources":
             assert cell.n_sources >= 2
-    params = {p.id: p for p in report.parameters}
+    params = {p.id: p for p in report.slots}
     for cell in report.coverage.itertuples(index=False):
-        p = params[cell.parameter]
-        if len(p.compartments) == 1:
-            assert cell.state == sql_state(store, cell.species, cell.life_stage, p.compartments[0], p.quantities)
+        p = params[cell.slot]
+        if len(p.stored) == 1:
+            assert cell.state == sql_state(store, cell.species, cell.life_stage, p.stored, p.quantities)
     # the human adult set is the best curated one: several sources behind its liver volume
-    assert report.coverage.query("species == 'human' and parameter == 'liver.volume'")["state"].item() == \
+    assert report.coverage.query("species == 'human' and slot == 'liver.volume'")["state"].item() == \
         "several sources"
 
 
 def test_readiness_is_the_non_gap_share_of_the_parameter_set(store, report):
     for species in ("human", "rat", EMPTY):
         table = store.parameter_set(species, fill="none").table
-        table = table[(table["compartment"] != "rest_of_body") & (table["fill"] != "not_applicable")]
-        expected = (table["fill"] != "gap").mean()
+        table = table[(table["compartment"] != "rest_of_body") & (table["origin"] != "not_applicable")]
+        expected = (table["origin"] != "gap").mean()
         got = report.readiness.set_index("species").loc[species, "readiness"]
         assert got == pytest.approx(expected, abs=1e-4)
     ranked = report.under_studied["readiness"].tolist()
@@ -135,16 +138,18 @@ def test_readiness_is_the_non_gap_share_of_the_parameter_set(store, report):
 
 
 def test_other_layouts_and_stages(store):
-    small = gap_report(store, ["human", "rat"], stage="all", layout="rich_slow")
-    assert {"richly_perfused.volume", "slowly_perfused.blood_flow"} <= {p.id for p in small.parameters}
-    assert "blood.blood_flow" not in {p.id for p in small.parameters}  # blood carries the cardiac output
-    # a lumped compartment stands as its worst part
+    small = gap_report(store, ["human", "rat"], life_stage="all", layout="rich_slow")
+    assert {"richly_perfused.volume", "slowly_perfused.blood_flow"} <= {p.id for p in small.slots}
+    assert "blood.blood_flow" not in {p.id for p in small.slots}  # blood carries the cardiac output
+    # a lumped compartment stands as its worst part (each part counted with the parts it may be summed from)
+    parts = {"gut": ["gut", "stomach", "small_intestine", "large_intestine", "rumen"]}
     for cell in small.coverage.itertuples(index=False):
-        p = next(q for q in small.parameters if q.id == cell.parameter)
-        if len(p.compartments) > 1 and cell.n_values:
-            worst = min(STATES.index(sql_state(store, cell.species, cell.life_stage, c, p.quantities))
-                        for c in p.compartments)
-            assert cell.level == worst, (cell.species, cell.parameter)
+        p = next(q for q in small.slots if q.id == cell.slot)
+        named = load_layout("rich_slow").compartments.get(p.compartment, [])
+        if len(named) > 1 and cell.n_values:
+            worst = min(STATES.index(sql_state(store, cell.species, cell.life_stage, parts.get(c, [c]),
+                                               p.quantities)) for c in named)
+            assert cell.level == worst, (cell.species, cell.slot)
     stages = set(zip(small.readiness["species"], small.readiness["life_stage"]))
     assert ("human", "adult") in stages and ("rat", "adult") in stages
     in_store = {tuple(r) for r in store.query("SELECT DISTINCT species_id, life_stage_id FROM curated_values "
@@ -153,24 +158,27 @@ def test_other_layouts_and_stages(store):
 
 
 def test_needed_for_traces_gaps_to_what_would_close_them():
-    """A hand-made parameter-set table (invented for tests): body weight and cardiac output are gaps."""
-    layout = Layout("t", "", {"liver": ["liver"], "gut": ["gut"], "lung": ["lung"], "blood": ["blood"]})
-    params = layout_parameters(layout)
+    """A hand-made parameter-set table (invented for tests): body mass and cardiac output are gaps; each
+    row lists the slots it rests on, as parameter sets write them."""
     table = pd.DataFrame([
-        ("whole_body", "body_weight", "gap"), ("whole_body", "cardiac_output", "gap"),
-        ("liver", "volume", "gap"), ("liver", "blood_flow", "gap"), ("gut", "volume", "scaled"),
-        ("gut", "blood_flow", "gap"), ("lung", "volume", "gap"), ("lung", "blood_flow", "gap"),
-        ("blood", "volume", "gap"), ("blood", "blood_flow", "not_applicable")],
-        columns=["compartment", "parameter", "fill"])
-    cover = {"liver.volume": "fraction only", "lung.volume": "absent", "blood.volume": "fraction only",
-             "gut.blood_flow": "fraction only"}
-    needs = needed_for(table, cover, layout, params)
-    assert needs[("whole_body", "body_weight")] == {"body_mass"}
-    assert needs[("liver", "volume")] == {"body_mass"}  # a fraction is stored; the body weight is missing
-    assert needs[("lung", "volume")] == {"lung.volume", "body_mass"}
-    assert needs[("lung", "blood_flow")] == {"cardiac_output", "body_mass"}  # lung flow is the cardiac output
-    assert needs[("liver", "blood_flow")] == {"liver.blood_flow", "gut.blood_flow", "body_mass", "cardiac_output"}
-    assert ("blood", "blood_flow") not in needs and ("gut", "volume") not in needs
+        ("body_mass", "gap", "body_mass"), ("cardiac_output", "gap", "cardiac_output; body_mass"),
+        ("liver.volume", "gap", "liver.volume; body_mass"),
+        ("liver.blood_flow", "gap", "liver.blood_flow; cardiac_output; body_mass; gut.blood_flow"),
+        ("gut.volume", "scaled", "gut.volume; body_mass"),
+        ("gut.blood_flow", "gap", "gut.blood_flow; cardiac_output; body_mass"),
+        ("lung.volume", "gap", "lung.volume; body_mass"), ("lung.blood_flow", "gap", "cardiac_output; body_mass"),
+        ("blood.volume", "gap", "blood.volume; body_mass"), ("blood.blood_flow", "not_applicable", "")],
+        columns=["slot", "origin", "depends_on"])
+    cover = {"body_mass": "absent", "cardiac_output": "absent", "liver.volume": "fraction only",
+             "liver.blood_flow": "fraction only", "lung.volume": "absent", "blood.volume": "fraction only",
+             "gut.volume": "fraction only", "gut.blood_flow": "fraction only", "lung.blood_flow": "absent"}
+    needs = needed_for(table, cover)
+    assert needs["body_mass"] == {"body_mass"}
+    assert needs["liver.volume"] == {"body_mass"}  # a fraction is stored; the body mass is missing
+    assert needs["lung.volume"] == {"lung.volume", "body_mass"}
+    assert needs["lung.blood_flow"] == {"cardiac_output", "body_mass"}  # lung flow is the cardiac output
+    assert needs["liver.blood_flow"] == {"gut.blood_flow", "body_mass", "cardiac_output"}
+    assert "blood.blood_flow" not in needs and "gut.volume" not in needs
 
 
 def test_most_wanted_counts_are_consistent(report):
@@ -183,7 +191,7 @@ def test_most_wanted_counts_are_consistent(report):
     ranked = list(zip(mw["species_made_ready"], mw["gaps_closed_alone"], mw["species_needing"]))
     assert ranked == sorted(ranked, reverse=True)
     # a species with no rows at all waits on body mass among others
-    assert EMPTY in mw.set_index("parameter").loc["body_mass", "species"]
+    assert EMPTY in mw.set_index("slot").loc["body_mass", "species"]
 
 
 def test_heatmap_png_is_written_and_names_every_species(report, tmp_path):
@@ -196,13 +204,13 @@ def test_heatmap_png_is_written_and_names_every_species(report, tmp_path):
     assert path.read_bytes() == data and data[:8] == b"\x89PNG\r\n\x1a\n"
     height, width = mpimg.imread(path).shape[:2]
     # at least 0.25 inch per species row and per parameter column at 150 dpi: legible when printed
-    assert height >= 0.25 * 150 * len(report.readiness) and width >= 0.4 * 150 * len(report.parameters)
+    assert height >= 0.25 * 150 * len(report.readiness) and width >= 0.4 * 150 * len(report.slots)
     fig = heatmap_figure(report)
     ax = fig.axes[0]
     row_text = " ".join(t.get_text() for t in ax.get_yticklabels())
     for species in report.readiness["species"]:
         assert species in row_text
-    assert [t.get_text() for t in ax.get_xticklabels()] == [p.label for p in report.parameters]
+    assert [t.get_text() for t in ax.get_xticklabels()] == [p.label for p in report.slots]
     legend = [t.get_text() for t in fig.legends[0].get_texts()]
     assert legend == STATES
 
@@ -261,7 +269,7 @@ def test_html_report_is_self_contained_and_complete(store, report, tmp_path):
     assert ranked[0][:3] == ["rank", "species", "stage"]
     assert sorted(r[1] for r in ranked[1:]) == sorted(store.ids("species"))
     assert [r[1] for r in ranked[1:]] == list(report.under_studied["species"])
-    assert [r[0] for r in parser.tables["most-wanted"][1:]] == list(report.most_wanted["parameter"])
+    assert [r[0] for r in parser.tables["most-wanted"][1:]] == list(report.most_wanted["slot"])
     # every covered cell is listed with its sources, and every source is cited
     cells = parser.tables["cells"][1:]
     covered = report.coverage[report.coverage["n_values"] > 0]
@@ -290,7 +298,7 @@ def test_cli_gaps(store, tmp_path):
     assert out.stat().st_size > 10_000 and "human" in result.output and "dog" in result.output
     csv = runner.invoke(cli, ["gaps", "--species", "rat", "--format", "csv", "--store", str(store.path)])
     frame = pd.read_csv(io.StringIO(csv.output))
-    assert set(frame["species"]) == {"rat"} and len(frame) == len(layout_parameters(load_layout("whole_body")))
+    assert set(frame["species"]) == {"rat"} and len(frame) == len(slots(load_layout("whole_body")))
     bad = runner.invoke(cli, ["gaps", "--out", str(tmp_path / "x.txt"), "--store", str(store.path)])
     assert bad.exit_code != 0
 
@@ -307,8 +315,8 @@ def test_store_method_and_subsets_match_the_full_report(store, report):
     few = ["human", "rat", EMPTY]
     same = store.gap_report(few)
     full = report.coverage[report.coverage["species"].isin(few)].reset_index(drop=True)
-    pd.testing.assert_frame_equal(same.coverage.sort_values(["species", "parameter"]).reset_index(drop=True),
-                                  full.sort_values(["species", "parameter"]).reset_index(drop=True))
+    pd.testing.assert_frame_equal(same.coverage.sort_values(["species", "slot"]).reset_index(drop=True),
+                                  full.sort_values(["species", "slot"]).reset_index(drop=True))
     ready = report.readiness.set_index("species").loc[few, ["readiness", "waits_on"]]
     assert same.readiness.set_index("species").loc[few, ["readiness", "waits_on"]].equals(ready)
 

@@ -40,11 +40,11 @@ def cell(ps, compartment, parameter):
 
 # ---- scaling ------------------------------------------------------------------------------------
 def test_fraction_times_body_weight_over_density(toy_store):
-    ps = toy_store.parameter_set("dog", body_weight="12 kg")
+    ps = toy_store.parameter_set("dog", body_mass="12 kg")
     liver = cell(ps, "liver", "volume")
     expected = 0.03 * 10 ** -0.1 * 12 / 1.05  # toy fraction at the dog's 10 kg, × 12 kg, / 1.05 kg/L
     assert liver["value"] == pytest.approx(expected, rel=2e-3)
-    assert liver["fill"] == "scaled"
+    assert liver["origin"] == "scaled"
     assert "density 1.05 kg/L" in liver["method"]
 
 
@@ -59,24 +59,24 @@ def test_flow_fraction_times_cardiac_output(toy_store):
 def test_pounds_and_pint_quantities_are_body_weights(toy_store):
     from bodyplan.units import Quantity
 
-    a = toy_store.parameter_set("dog", body_weight="26.4555 lb")  # 12.000 kg (1 lb = 0.45359237 kg, NIST SP 811)
-    b = toy_store.parameter_set("dog", body_weight=Quantity(12, "kg"))
-    assert a.body_weight.value == pytest.approx(12.0, rel=1e-5)
+    a = toy_store.parameter_set("dog", body_mass="26.4555 lb")  # 12.000 kg (1 lb = 0.45359237 kg, NIST SP 811)
+    b = toy_store.parameter_set("dog", body_mass=Quantity(12, "kg"))
+    assert a.body_mass.value == pytest.approx(12.0, rel=1e-5)
     assert cell(a, "liver", "volume")["value"] == pytest.approx(cell(b, "liver", "volume")["value"], rel=1e-5)
 
 
 def test_body_weight_must_be_a_positive_mass(toy_store):
     with pytest.raises(ParameterSetError):
-        toy_store.parameter_set("dog", body_weight="12 L")
+        toy_store.parameter_set("dog", body_mass="12 L")
     with pytest.raises(ParameterSetError):
-        toy_store.parameter_set("dog", body_weight="-3 kg")
+        toy_store.parameter_set("dog", body_mass="-3 kg")
 
 
 @settings(max_examples=25, deadline=None)
 @given(bw=st.floats(min_value=1.0, max_value=100.0), k=st.floats(min_value=1.1, max_value=5.0))
 def test_volumes_scale_linearly_with_body_weight(toy_store, bw, k):
-    a = toy_store.parameter_set("rabbit", body_weight=f"{bw} kg").table
-    b = toy_store.parameter_set("rabbit", body_weight=f"{bw * k} kg").table
+    a = toy_store.parameter_set("rabbit", body_mass=f"{bw} kg").table
+    b = toy_store.parameter_set("rabbit", body_mass=f"{bw * k} kg").table
     vols = a["parameter"] == "volume"
     ratio = (b.loc[vols, "value"] / a.loc[vols, "value"]).dropna()
     assert np.allclose(ratio, k, rtol=1e-9)
@@ -86,18 +86,18 @@ def test_volumes_scale_linearly_with_body_weight(toy_store, bw, k):
 @given(species=st.sampled_from(["mouse", "rat", "rabbit", "dog", "pig", "cattle", "human"]),
        bw=st.floats(min_value=0.01, max_value=800.0))
 def test_rest_of_body_never_silently_negative(toy_store, species, bw):
-    ps = toy_store.parameter_set(species, body_weight=f"{bw} kg")
+    ps = toy_store.parameter_set(species, body_mass=f"{bw} kg")
     rest = ps.volumes["rest_of_body"]
     if rest.value is not None and rest.value < 0:
-        assert any(c["check"] == "volumes_within_body_weight" and c["status"] == "fail" for c in ps.checks)
+        assert any(c["check"] == "volumes_within_body_mass" and c["status"] == "fail" for c in ps.checks)
     flow = ps.flows["rest_of_body"]
     if flow.value is not None and flow.value < 0:
         assert any(c["check"] == "rest_of_body_flow_not_negative" and c["status"] == "fail" for c in ps.checks)
 
 
 def test_same_request_same_numbers(toy_store):
-    a = toy_store.parameter_set("pig", body_weight="80 kg").to_json()
-    b = toy_store.parameter_set("pig", body_weight="80 kg").to_json()
+    a = toy_store.parameter_set("pig", body_mass="80 kg").to_json()
+    b = toy_store.parameter_set("pig", body_mass="80 kg").to_json()
     assert a == b
 
 
@@ -113,7 +113,7 @@ def test_lumping_then_summing_equals_summing_then_lumping(toy_store):
     # every layout closes to the same body weight and cardiac output
     for ps in (whole, lumped):
         total_v = sum(v.value for v in ps.volumes.values())
-        assert total_v == pytest.approx(ps.body_weight.value / 1.0)
+        assert total_v == pytest.approx(ps.body_mass.value / 1.0)
 
 
 def test_portal_circulation_is_explicit(toy_store):
@@ -178,7 +178,7 @@ def test_pooling_fallback_is_stated():
 
 
 def test_parameter_set_pools_two_studies(toy_store):
-    ps = toy_store.parameter_set("human", body_weight="70 kg")
+    ps = toy_store.parameter_set("human", body_mass="70 kg")
     liver = ps.volumes["liver"]
     assert set(liver.sources) >= {"toy2026"}
     assert "DerSimonian–Laird" in liver.method
@@ -190,34 +190,34 @@ def test_sparse_species_gaps_have_reasons(toy_store):
     gaps = {(g["compartment"], g["quantity"]): g["reason"] for g in ps.gaps}
     assert ("kidney", "volume") in gaps and "no volume, mass or mass fraction of kidney" in gaps[("kidney", "volume")]
     assert ("whole_body", "cardiac_output") in gaps
-    assert ps.volumes["liver"].fill == "scaled"
+    assert ps.volumes["liver"].origin == "scaled"
     assert all(reason for reason in gaps.values())
 
 
 def test_allometric_fill_labels_values_with_intervals(toy_store):
     ps = toy_store.parameter_set("ferret", fill="allometric")
     kidney = ps.volumes["kidney"]
-    assert kidney.fill == "allometric"
+    assert kidney.origin == "allometric"
     assert kidney.low < kidney.value < kidney.high
     assert "allometric across 7 species" in kidney.method
     # toy data follow volume = 0.006 · BW^0.9 / 1.05 exactly, so the fit recovers it
     assert kidney.value == pytest.approx(0.006 * 1.2**0.9 / 1.05, rel=0.02)
-    assert ps.cardiac_output.fill == "allometric"
+    assert ps.cardiac_output.origin == "allometric"
     assert ps.cardiac_output.value == pytest.approx(15 * 1.2**0.75, rel=0.02)
-    assert json.loads(ps.to_json())["cardiac_output"]["fill"] == "allometric"
-    assert toy_store.parameter_set("ferret").volumes["kidney"].fill == "gap"  # never without asking
+    assert json.loads(ps.to_json())["cardiac_output"]["origin"] == "allometric"
+    assert toy_store.parameter_set("ferret").volumes["kidney"].origin == "gap"  # never without asking
 
 
 # ---- exports ------------------------------------------------------------------------------------
 def test_json_has_the_documented_keys(toy_store):
-    d = json.loads(toy_store.parameter_set("dog", body_weight="12 kg").to_json())
-    for key in ("species", "life_stage", "body_weight", "cardiac_output", "compartments", "gaps", "checks",
+    d = json.loads(toy_store.parameter_set("dog", body_mass="12 kg").to_json())
+    for key in ("species", "life_stage", "body_mass", "cardiac_output", "compartments", "gaps", "checks",
                 "caution"):
         assert key in d
-    assert d["body_weight"] == {**d["body_weight"], "value": 12.0, "unit": "kg"}
+    assert d["body_mass"] == {**d["body_mass"], "value": 12.0, "unit": "kg"}
     first = d["compartments"][0]
     for part in ("volume", "blood_flow"):
-        assert {"value", "unit", "sd", "fill", "sources"} <= set(first[part])
+        assert {"value", "unit", "sd", "origin", "sources"} <= set(first[part])
     assert "veterinarian" in d["caution"]
 
 
@@ -271,11 +271,11 @@ def test_adult_male_human_against_icrp89(real_store):
     The set pools every stored source (not ICRP alone), so each organ must fall within 30 %
     of the reference: the spread between published adult series is of that order.
     """
-    ps = real_store.parameter_set("human", sex="male", body_weight="73 kg")
+    ps = real_store.parameter_set("human", sex="male", body_mass="73 kg")
     reference_kg = {"liver": 1.8, "brain": 1.45, "kidney": 0.31, "heart": 0.33}
     for organ, kg in reference_kg.items():
         volume = ps.volumes[organ]
-        assert volume.fill != "gap", organ
+        assert volume.origin != "gap", organ
         assert volume.value == pytest.approx(kg / 1.05, rel=0.30), organ  # ≈1.05 kg/L soft tissue
     assert ps.cardiac_output.value / 60 == pytest.approx(6.5, rel=0.15)
 
@@ -283,10 +283,10 @@ def test_adult_male_human_against_icrp89(real_store):
 def test_rat_against_brown_1997(real_store):
     """Brown et al. 1997 Toxicol Ind Health 13:407, Table 5 (rat organ weights, % body weight):
     liver 3.66, kidneys 0.73, brain 0.57 (from memory of the table)."""
-    ps = real_store.parameter_set("rat", body_weight="0.25 kg")
+    ps = real_store.parameter_set("rat", body_mass="0.25 kg")
     for organ, percent in {"liver": 3.66, "kidney": 0.73, "brain": 0.57}.items():
         volume = ps.volumes[organ]
-        assert volume.fill != "gap", organ
+        assert volume.origin != "gap", organ
         assert volume.value * 1.05 / 0.25 * 100 == pytest.approx(percent, rel=0.25), organ
 
 
@@ -307,18 +307,18 @@ def test_cli_params_json(real_store, tmp_path):
                                       "--out", str(out), "--store", str(real_store.path)])
     assert result.exit_code == 0, result.output
     d = json.loads(out.read_text())
-    assert d["species"] == "dog" and d["body_weight"]["value"] == 12.0
+    assert d["species"] == "dog" and d["body_mass"]["value"] == 12.0
     table = CliRunner().invoke(cli, ["params", "dog", "--store", str(real_store.path)])
     assert "liver" in table.output and "research modelling" in table.output
-    assert math.isfinite(d["body_weight"]["value"])
+    assert math.isfinite(d["body_mass"]["value"])
 
 
 def test_gfr_scales_per_kg_and_hematocrit_is_not_scaled(toy_store):
-    ps = toy_store.parameter_set("dog", body_weight="12 kg")
+    ps = toy_store.parameter_set("dog", body_mass="12 kg")
     gfr, hct = ps.physiology["gfr"], ps.physiology["hematocrit"]
     assert gfr.value == pytest.approx(4 * 12 * 60 / 1000)  # 4 mL/min/kg × 12 kg in L/h
-    assert gfr.fill == "scaled"
-    assert hct.value == pytest.approx(0.45) and hct.fill == "measured" and hct.sd == pytest.approx(0.03)
+    assert gfr.origin == "scaled"
+    assert hct.value == pytest.approx(0.45) and hct.origin == "measured" and hct.sd == pytest.approx(0.03)
     d = json.loads(toy_store.parameter_set("dog", units="clinical").to_json())
     assert d["physiology"]["gfr"]["unit"] == "mL/min"
     assert d["physiology"]["gfr"]["value"] == pytest.approx(40.0)  # 4 mL/min/kg × the dog's 10 kg

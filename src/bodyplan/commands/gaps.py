@@ -38,7 +38,7 @@ def gaps_cmd(species, stage, layout, fmt, out, store_path):
     from ..api import open_store
 
     store = open_store(store_path)
-    report = store.gap_report(list(species) or None, stage=stage, layout=layout)
+    report = store.gap_report(list(species) or None, life_stage=stage, layout=layout)
     if out:
         click.echo(f"wrote {_write_report(report, out, store)}", err=True)
     if fmt == "json":
@@ -47,14 +47,14 @@ def gaps_cmd(species, stage, layout, fmt, out, store_path):
         emit(report.coverage, fmt)
     else:
         ranked = report.under_studied.assign(readiness=lambda f: (f["readiness"] * 100).round(0).astype(int))
-        emit(ranked[["rank", "species", "life_stage", "readiness", "available", "total", "covered_parameters",
+        emit(ranked[["rank", "species", "life_stage", "readiness", "available", "total", "covered_slots",
                      "waits_on"]]
-             .rename(columns={"readiness": "readiness %", "covered_parameters": "parameters with data",
+             .rename(columns={"readiness": "readiness %", "covered_slots": "parameters with data",
                               "waits_on": "to curate"}),
              fmt, title=f"Readiness ({report.layout} layout), least ready first")
-        emit(report.most_wanted[["parameter", "species_made_ready", "gaps_closed_alone", "species_needing"]]
+        emit(report.most_wanted[["slot", "species_made_ready", "gaps_closed_alone", "species_needing"]]
              .head(15), fmt, title="Most wanted: curating this closes the most gaps")
-        counts = report.coverage.pivot_table(index=["species", "life_stage"], columns="state", values="parameter",
+        counts = report.coverage.pivot_table(index=["species", "life_stage"], columns="state", values="slot",
                                              aggfunc="count", fill_value=0).reset_index()
         emit(counts, fmt, title="Coverage cells per state (full matrix: --format csv or json, or --out FILE.html)")
 

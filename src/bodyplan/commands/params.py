@@ -30,9 +30,9 @@ def render_table(ps, file=None) -> None:
 
     d = ps.to_dict()
     console = Console(file=file or sys.stdout, width=None if (file or sys.stdout).isatty() else 160)
-    bw, co = d["body_weight"], d["cardiac_output"]
+    bw, co = d["body_mass"], d["cardiac_output"]
     title = (f"{ps.species}, {ps.life_stage}{', ' + ps.sex if ps.sex else ''}: {ps.layout.name} layout, "
-             f"body weight {_fmt(bw['value'])} kg ({bw['fill']})")
+             f"body mass {_fmt(bw['value'])} kg ({bw['origin']})")
     table = Table(title=title, title_justify="left")
     for name, justify in (("compartment", "left"), (f"volume ({d['compartments'][0]['volume']['unit']})", "right"),
                           ("how", "left"), (f"blood flow ({co['unit']})", "right"), ("how", "left"),
@@ -40,13 +40,13 @@ def render_table(ps, file=None) -> None:
         table.add_column(name, justify=justify, overflow="fold")
 
     def how(cell):
-        colour = {"gap": "bold red", "allometric": "yellow", "not_applicable": "dim"}.get(cell["fill"], "")
-        text = "n/a" if cell["fill"] == "not_applicable" else cell["fill"]
+        colour = {"gap": "bold red", "allometric": "yellow", "not_applicable": "dim"}.get(cell["origin"], "")
+        text = "n/a" if cell["origin"] == "not_applicable" else cell["origin"]
         return f"[{colour}]{text}[/]" if colour else text
 
     def val(cell):
         v = _fmt(cell["value"], cell["sd"], cell["se"], *(cell.get("interval") or (None, None)))
-        return "[bold red]gap[/]" if cell["fill"] == "gap" else v
+        return "[bold red]gap[/]" if cell["origin"] == "gap" else v
 
     def short(sources):  # the JSON and CSV keep every source; the table names a few
         sources = list(dict.fromkeys(sources))
@@ -69,8 +69,8 @@ def render_table(ps, file=None) -> None:
         style = {"pass": "green", "warn": "yellow", "fail": "bold red"}[check["status"]]
         console.print(f"[{style}]{check['status']}[/] {check['check']}: {check['detail']}")
     if d["gaps"]:
-        hint = ("give --body-weight to scale to" if bw["fill"] == "gap" else
-                "fill them from other species with --fill allometric" if ps.fill_policy == "none" else
+        hint = ("give --body-weight to scale to" if bw["origin"] == "gap" else
+                "fill them from other species with --fill allometric" if ps.fill == "none" else
                 "too few species have these to fit across species")
         console.print(f"[bold red]{len(d['gaps'])} gap(s)[/]; {hint}, or curate a source "
                       "(bodyplan gaps shows what is missing)")
@@ -97,7 +97,7 @@ def params_cmd(species, life_stage, sex, body_weight, layout, fill, units, fmt, 
     """A model-ready parameter set for SPECIES, scaled to a body weight, every gap marked."""
     from ..api import open_store
 
-    ps = open_store(store_path).parameter_set(species, life_stage=life_stage, sex=sex, body_weight=body_weight,
+    ps = open_store(store_path).parameter_set(species, life_stage=life_stage, sex=sex, body_mass=body_weight,
                                               layout=layout, fill=fill, units=units)
     text = {"json": ps.to_json, "csv": ps.to_csv, "sbml": ps.to_sbml}.get(fmt)
     if out:

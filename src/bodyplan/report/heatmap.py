@@ -45,11 +45,11 @@ def heatmap_figure(report: GapReport):
     states = report.matrix("state")
     marks = report.matrix("mark")
     # most ready species on top
-    order = report.readiness.sort_values(["readiness", "covered_parameters", "species"],
+    order = report.readiness.sort_values(["readiness", "covered_slots", "species"],
                                          ascending=[False, False, True], kind="stable")
     keys = [k for k in zip(order["species"], order["life_stage"])]
     states, marks = states.loc[keys], marks.loc[keys]
-    labels = [p.label for p in report.parameters]
+    labels = [p.label for p in report.slots]
     n_rows, n_cols = states.shape
     colours = state_colours()
 
@@ -68,7 +68,7 @@ def heatmap_figure(report: GapReport):
                         bbox=dict(boxstyle="square,pad=0.05", facecolor=rgba, edgecolor="none")
                         if state in HATCH else None)
     # separators between whole-body, volume and flow columns
-    kinds = [p.id.split(".")[-1] if "." in p.id else "whole" for p in report.parameters]
+    kinds = [p.id.split(".")[-1] if "." in p.id else "whole" for p in report.slots]
     for j in range(1, n_cols):
         if kinds[j] != kinds[j - 1]:
             ax.axvline(j, color="black", linewidth=1.2)
@@ -82,7 +82,7 @@ def heatmap_figure(report: GapReport):
     ax.set_xticklabels(labels, rotation=60, ha="left", rotation_mode="anchor", fontsize=9.5)
     for side in ax.spines.values():
         side.set_visible(False)
-    stage = "all stages" if report.stage == "all" else report.stage
+    stage = "all stages" if report.life_stage == "all" else report.life_stage
     fig.suptitle(f"Curated coverage, layout {report.layout}, {stage}  (row label: readiness)", fontsize=12,
                  x=0.01, ha="left")
 

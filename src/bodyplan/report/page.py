@@ -64,9 +64,9 @@ def gap_report_html(report: GapReport, png: bytes | None = None, store_info: dic
     image = base64.b64encode(png).decode("ascii")
     ranked = report.under_studied.assign(readiness_pct=lambda f: (f["readiness"] * 100).round(0).astype(int),
                                          missing=lambda f: [_missing(r) for r in f.itertuples()])
-    stage = "all stages" if report.stage == "all" else f"life stage {report.stage}"
+    stage = "all stages" if report.life_stage == "all" else f"life stage {report.life_stage}"
     covered = report.coverage[report.coverage["n_values"] > 0].sort_values(["species", "life_stage",
-                                                                                    "parameter"])
+                                                                                    "slot"])
     states = pd.DataFrame([{"state": k, "meaning": v} for k, v in STATE_HELP.items()])
     info = store_info or {}
     parts = [
@@ -75,7 +75,7 @@ def gap_report_html(report: GapReport, png: bytes | None = None, store_info: dic
         f"<title>bodyplan gap report: {escape(report.layout)}, {escape(stage)}</title>",
         f"<style>{STYLE}</style></head><body>",
         f"<h1>Gap report: layout {escape(report.layout)}, {escape(stage)}</h1>",
-        f'<p class="note">{len(ranked)} species × stage rows, {len(report.parameters)} parameters. '
+        f'<p class="note">{len(ranked)} species × stage rows, {len(report.slots)} parameters. '
         f"Store {escape(str(info.get('store', '')))}, content hash {escape(str(info.get('content_hash', ''))[:16])}."
         " Readiness is the share of the layout's parameter set (body weight, cardiac output, GFR, hematocrit, "
         "volume and blood flow per compartment; rest_of_body left out) that the store supplies without "
@@ -87,21 +87,21 @@ def gap_report_html(report: GapReport, png: bytes | None = None, store_info: dic
         "<h2>Under-studied species (least ready first)</h2>",
         _table(ranked, {"rank": "rank", "species": "species", "life_stage": "stage",
                         "readiness_pct": "readiness %", "available": "available", "total": "of",
-                        "covered_parameters": "parameters with any data", "missing": "gaps",
+                        "covered_slots": "parameters with any data", "missing": "gaps",
                         "waits_on": "to curate (see Most wanted)"},
-               numeric={"rank", "readiness_pct", "available", "total", "covered_parameters"},
+               numeric={"rank", "readiness_pct", "available", "total", "covered_slots"},
                table_id="under-studied"),
         "<h2>Most wanted</h2>",
         '<p class="note">What each gap waits on: its own parameter when nothing is stored for it, body mass '
         "when the body weight is a gap, cardiac output for flows when it is a gap. <em>made ready</em>: species "
         "whose every gap waits on this parameter alone; <em>gaps closed alone</em>: gaps that wait on it "
         "alone; <em>species needing</em>: species with a gap that waits on it.</p>",
-        _table(report.most_wanted, {"parameter": "parameter", "species_made_ready": "made ready",
+        _table(report.most_wanted, {"slot": "slot", "species_made_ready": "made ready",
                                     "gaps_closed_alone": "gaps closed alone",
                                     "species_needing": "species needing", "species": "species"},
                numeric={"species_made_ready", "gaps_closed_alone", "species_needing"}, table_id="most-wanted"),
         "<h2>Sources behind each covered cell</h2>",
-        _table(covered, {"species": "species", "life_stage": "stage", "parameter": "parameter", "state": "state",
+        _table(covered, {"species": "species", "life_stage": "stage", "slot": "slot", "state": "state",
                          "n_values": "values", "n_absolute": "absolute", "n_verified": "verified",
                          "n_with_uncertainty": "with uncertainty", "parts_lacking": "parts lacking data",
                          "sources": "sources"},

@@ -211,10 +211,16 @@ def extra_template_vars(template, database, table, view_name, request, datasette
     return source_page if table == "sources" else value_page
 
 
-COVERAGE_SQL = """
+def _coverage_sql() -> str:
+    """Rows per species, compartment and parameter, the parameter named by the model declaration."""
+    from bodyplan.schema.model import PARAMETERS, routes  # absolute: the plugin file is also copied out
+
+    quoted = lambda qs: ", ".join(f"'{q}'" for q in qs)  # noqa: E731  (ids from the declaration, not input)
+    volume = quoted(dict.fromkeys((*routes("volume"), *routes("volume", "blood"))))
+    return f"""
 SELECT species_id, compartment_id,
-       CASE WHEN quantity_id IN ('tissue_mass', 'tissue_mass_fraction', 'tissue_volume', 'blood_volume')
-            THEN 'volume' WHEN quantity_id IN ('blood_flow', 'blood_flow_fraction') THEN 'flow'
+       CASE WHEN quantity_id IN ({volume}) THEN 'volume'
+            WHEN quantity_id IN ({quoted(PARAMETERS["blood_flow"].routes)}) THEN 'flow'
             ELSE quantity_id END AS param,
        count(*) AS n, sum(verified) AS n_verified, count(DISTINCT source_id) AS n_sources
 FROM curated_values WHERE life_stage_id = ? AND value IS NOT NULL GROUP BY 1, 2, 3
@@ -228,7 +234,7 @@ def _coverage_vars(datasette, request, extra):
         db = datasette.get_database("bodyplan")
         stage = request.args.get("stage", "adult")
         cells = {f"{r['species_id']}|{r['compartment_id']}|{r['param']}": dict(r)
-                 for r in (await db.execute(COVERAGE_SQL, [stage])).rows}
+                 for r in (await db.execute(_coverage_sql(), [stage])).rows}
         species = [dict(r) for r in (await db.execute("SELECT id, common_name FROM species ORDER BY id")).rows]
         stages = [r["id"] for r in (await db.execute("SELECT id FROM life_stages ORDER BY id")).rows]
         return dict(extra, coverage_cells=cells, coverage_species=species, coverage_stages=stages,
