@@ -10,8 +10,8 @@ import numpy as np
 import pandas as pd
 
 from .. import CAUTION
-from ..schema.model import (LIVER, PARAMETERS, PORTAL_ORGANS, SHARES_OF_A_WHOLE, has_own_flow, is_portal,
-                            is_pulmonary, parameter_of, slot_id)
+from ..schema.model import (LIVER, PARAMETERS, PORTAL_ORGANS, SHARES_OF_A_WHOLE, VESSELS_OF_LIVER, has_own_flow,
+                            is_portal, is_pulmonary, parameter_of, slot_id)
 from .layouts import REST, Layout, load_layout
 from .pooling import Estimate
 from .resolve import SAME_BODY_WEIGHT, Resolved, Resolver
@@ -43,6 +43,8 @@ class Cell:
     method: str = ""
     reason: str = ""  # for gaps
     depends_on: tuple[str, ...] = ()  # slot ids (schema.model) whose curated data this number uses
+    verified_share: float | None = None  # share of its weight on rows read in their source (None: not from rows)
+    mass: float | None = None  # kg, for volumes: volume × the tissue density used (closes the mass balance)
 
     @classmethod
     def gap(cls, unit: str, reason: str) -> "Cell":
@@ -51,16 +53,17 @@ class Cell:
     def in_units(self, unit: str, factor: float) -> "Cell":
         mul = lambda x: None if x is None else x * factor  # noqa: E731
         return replace(self, value=mul(self.value), unit=unit, sd=mul(self.sd), se=mul(self.se), low=mul(self.low),
-                       high=mul(self.high))
+                       high=mul(self.high))  # mass stays in kg
 
     def resting_on(self, *slots: str) -> "Cell":
         return replace(self, depends_on=tuple(dict.fromkeys(self.depends_on + slots)))
 
     def as_dict(self) -> dict:
-        out = {"value": _round(self.value), "unit": self.unit, "sd": _round(self.sd), "se": _round(self.se),
-               "origin": self.origin, "sources": list(self.sources), "method": self.method}
+        out = {"value": _finite(self.value), "unit": self.unit, "sd": _finite(self.sd), "se": _finite(self.se),
+               "origin": self.origin, "verified_share": _finite(self.verified_share), "sources": list(self.sources),
+               "method": self.method}
         if self.low is not None:
-            out["interval"] = [_round(self.low), _round(self.high)]
+            out["interval"] = [_finite(self.low), _finite(self.high)]
             out["interval_kind"] = ("95 % prediction interval" if "prediction interval" in self.method
                                     else "range of the study values")
         if self.reason:
@@ -68,10 +71,11 @@ class Cell:
         return out
 
 
-def _round(x, digits=4):
-    if x is None or (isinstance(x, float) and math.isnan(x)):
+def _finite(x):
+    """Full precision in data formats; NaN and infinities are no JSON numbers."""
+    if x is None or not math.isfinite(x):
         return None
-    return float(f"{x:.{digits}g}")
+    return float(x)
 
 
 def _origin_for(resolved: Resolved, body_mass: float) -> str:
@@ -92,7 +96,8 @@ def _scaled_cell(resolved: Resolved, factor: float, unit: str, body_mass: float 
     method = est.method + (f" ({'; '.join(resolved.notes)})" if resolved.notes else "") + extra_method
     origin = ("measured" if est.n_studies == 1 else "pooled") if body_mass is None else \
         _origin_for(resolved, body_mass)
-    return Cell(est.value, unit, origin, est.sd, est.se, est.low, est.high, est.sources, method)
+    return Cell(est.value, unit, origin, est.sd, est.se, est.low, est.high, est.sources, method,
+                verified_share=resolved.verified_share)
 
 
 def _sum_cells(cells: list[Cell], unit: str, what: str) -> Cell:
@@ -107,7 +112,18 @@ def _sum_cells(cells: list[Cell], unit: str, what: str) -> Cell:
     ses = [c.se for c in cells]
     se = math.sqrt(sum(s * s for s in ses)) if all(s is not None for s in ses) else None
     sources = tuple(dict.fromkeys(s for c in cells for s in c.sources))
-    return Cell(sum(c.value for c in cells), unit, origin, None, se, None, None, sources, f"sum of {what}")
+    masses = [c.mass for c in cells]
+    return Cell(sum(c.value for c in cells), unit, origin, None, se, None, None, sources, f"sum of {what}",
+                verified_share=_weighted_share(cells), mass=None if None in masses else sum(masses))
+
+
+def _weighted_share(cells: list[Cell]) -> float | None:
+    """The verified share of a number made of others, each weighing its size."""
+    known = [c for c in cells if c.verified_share is not None and c.value is not None]
+    total = sum(abs(c.value) for c in known)
+    if not known or total == 0:
+        return None
+    return sum(abs(c.value) * c.verified_share for c in known) / total
 
 
 @dataclass
@@ -204,6 +220,7 @@ class ParameterSet:
 def _flat(cell: Cell) -> dict:
     return {"value": cell.value if cell.value is not None else np.nan, "unit": cell.unit,
             "sd": cell.sd, "se": cell.se, "low": cell.low, "high": cell.high, "origin": cell.origin,
+            "verified_share": cell.verified_share,
             "sources": "; ".join(cell.sources), "method": cell.method, "note": cell.reason,
             "depends_on": "; ".join(cell.depends_on)}
 
@@ -217,7 +234,8 @@ def _body_mass(resolver: Resolver, body_mass) -> tuple[Cell, float | None]:
         est = bw.estimate
         origin = "measured" if est.n_studies == 1 else "pooled"
         return Cell(est.value, "kg", origin, est.sd, est.se, est.low, est.high, est.sources,
-                    f"typical body mass: {est.method}", depends_on=("body_mass",)), est.value
+                    f"typical body mass: {est.method}", depends_on=("body_mass",),
+                    verified_share=bw.verified_share), est.value
     from ..units import UnitError, to_quantity
 
     try:
@@ -237,7 +255,10 @@ def _volume_cells(resolver: Resolver, layout: Layout, bw: float | None) -> dict[
             if bw is None:
                 members.append(Cell.gap("L", f"{part}: no body mass to scale to"))
                 continue
-            members.append(_scaled_cell(resolver.volume_per_kg(part), bw, "L", bw))
+            volume = _scaled_cell(resolver.volume_per_kg(part), bw, "L", bw)
+            if volume.value is not None:
+                volume = replace(volume, mass=volume.value * resolver.density(part)[0])
+            members.append(volume)
         cells[comp] = _sum_cells(members, "L", " + ".join(parts)).resting_on(slot_id(comp, "volume"), "body_mass")
     return cells
 
@@ -272,26 +293,69 @@ def _flow_cells(resolver: Resolver, layout: Layout, co: Cell, bw: float | None) 
         cells[comp] = cell.resting_on(slot_id(comp, "blood_flow"), "cardiac_output", "body_mass")
     if liver is None:
         return cells, "no liver compartment in this layout"
-    if portal_models:
-        portal = [cells[m] for m in portal_models]
-        total = cells[liver]
-        needs = tuple(slot_id(m, "blood_flow") for m in portal_models)
-        if total.origin == "gap" or any(c.origin == "gap" for c in portal):
-            cells[liver] = Cell.gap("L/h", "hepatic artery flow needs total liver flow and every portal organ's "
-                                    "flow").resting_on(*total.depends_on, *needs)
-        else:
-            value = total.value - sum(c.value for c in portal)
-            sources = tuple(dict.fromkeys(total.sources + tuple(s for c in portal for s in c.sources)))
-            cells[liver] = Cell(value, "L/h", "scaled", None, None, None, None, sources,
-                                f"hepatic artery = total hepatic flow − {' − '.join(portal_models)}",
-                                depends_on=total.depends_on + needs)
-        return cells, (f"hepatic artery only: the liver also receives the outflow of {', '.join(portal_models)} "
-                       "through the portal vein")
-    return cells, ("total hepatic flow (hepatic artery + portal vein); portal organs lumped elsewhere are not "
-                   "counted again in their compartment's flow")
+    return cells, _liver_circulation(resolver, cells, liver, portal_models, co, bw)
+
+
+def _liver_circulation(resolver: Resolver, cells: dict[str, Cell], liver: str, portal_models: list[str], co: Cell,
+                       bw: float | None) -> str:
+    """Give the liver the flow the layout needs from whatever the store has: total hepatic flow,
+    hepatic artery, portal vein flow, the portal organs' flows. With portal compartments in the
+    layout the liver's own flow is the hepatic artery (their outflow reaches it through the portal
+    vein); without, it is the total hepatic flow. Returns what the liver's flow is, in words."""
+    def vessel(name: str) -> Cell:
+        if co.origin == "gap":
+            return Cell.gap("L/h", "cardiac output is a gap")
+        return _scaled_cell(resolver.flow_fraction(name), co.value, "L/h", bw or 0.0, " × cardiac output"
+                            ).resting_on(slot_id(liver, "blood_flow"), "cardiac_output", "body_mass")
+
+    total, artery, portal_vein = cells[liver], vessel(VESSELS_OF_LIVER[0]), vessel(VESSELS_OF_LIVER[1])
+    known = lambda c: c.origin != "gap"  # noqa: E731
+    portal = {m: cells[m] for m in portal_models}
+    if not portal_models:  # the liver takes the total hepatic flow
+        if not known(total) and known(artery) and known(portal_vein):
+            cells[liver] = _combined([artery, portal_vein], artery.value + portal_vein.value,
+                                     "total hepatic flow = hepatic artery + portal vein")
+        return ("total hepatic flow (hepatic artery + portal vein); portal organs lumped elsewhere are not "
+                "counted again in their compartment's flow")
+    if not known(portal_vein) and known(total) and known(artery):
+        portal_vein = _combined([total, artery], total.value - artery.value, "portal vein = total hepatic − hepatic artery")
+    missing = [m for m, c in portal.items() if not known(c)]
+    if len(missing) == 1 and known(portal_vein):  # the one portal organ without a flow of its own
+        others = [portal[m] for m in portal if m != missing[0]]
+        value = portal_vein.value - sum(c.value for c in others)
+        if value > 0:
+            cells[missing[0]] = _combined([portal_vein, *others], value, "portal vein − " + (
+                " − ".join(m for m in portal if m != missing[0]) or "nothing")).resting_on(*portal[missing[0]].depends_on)
+            portal[missing[0]] = cells[missing[0]]
+    needs = tuple(slot_id(m, "blood_flow") for m in portal_models)
+    if known(artery):
+        cells[liver] = replace(artery, method="hepatic artery: " + artery.method).resting_on(*needs)
+    elif known(total) and known(portal_vein):
+        cells[liver] = _combined([total, portal_vein], total.value - portal_vein.value,
+                                 "hepatic artery = total hepatic − portal vein")
+    elif known(total) and all(known(c) for c in portal.values()):
+        cells[liver] = _combined([total, *portal.values()], total.value - sum(c.value for c in portal.values()),
+                                 f"hepatic artery = total hepatic flow − {' − '.join(portal_models)}")
+    else:
+        cells[liver] = Cell.gap("L/h", "hepatic artery flow needs a hepatic artery flow, or the total hepatic flow and "
+                                "the portal vein flow or every portal organ's flow"
+                                ).resting_on(*total.depends_on, *needs)
+    return (f"hepatic artery only: the liver also receives the outflow of {', '.join(portal_models)} "
+            "through the portal vein")
+
+
+def _combined(parts: list[Cell], value: float, method: str) -> Cell:
+    """A flow computed from other flows of the same set: their sources and dependencies, origin scaled."""
+    sources = tuple(dict.fromkeys(s for c in parts for s in c.sources))
+    depends = tuple(dict.fromkeys(d for c in parts for d in c.depends_on))
+    return Cell(value, "L/h", "scaled", None, None, None, None, sources, method, depends_on=depends,
+                verified_share=_weighted_share(parts))
 
 
 def _close_balances(ps: ParameterSet) -> None:
+    """rest_of_body closes both balances: the body mass left after every named compartment's mass
+    (volume × its tissue density), as a volume at REST_DENSITY; and the cardiac output left after
+    every named systemic flow."""
     bw, co = ps.body_mass, ps.cardiac_output
     vols = [ps.volumes[c] for c in ps.layout.compartments]
     vol_gaps = [c for c in ps.layout.compartments if ps.volumes[c].origin == "gap"]
@@ -301,13 +365,15 @@ def _close_balances(ps: ParameterSet) -> None:
                                     (", ".join(vol_gaps) + " lack a volume" if vol_gaps else "no body mass")
                                     ).resting_on(*vol_needs)
     else:
-        named = sum(v.value for v in vols)  # volumes in L; rest mass at 1 kg/L, stated below
-        rest = bw.value / REST_DENSITY - named
-        ps.volumes[REST] = Cell(rest, "L", "scaled", method=f"body mass at {REST_DENSITY:g} kg/L minus the "
-                                "named compartments' volumes", depends_on=vol_needs)
-        ps.checks.append(_check("volumes_within_body_mass", rest >= 0,
-                                f"named volumes {named:.4g} L against body mass {bw.value:.4g} kg "
-                                f"(≈ {bw.value / REST_DENSITY:.4g} L at {REST_DENSITY:g} kg/L)"))
+        named_mass = sum(v.mass if v.mass is not None else v.value * REST_DENSITY for v in vols)
+        rest_mass = bw.value - named_mass
+        ps.volumes[REST] = Cell(rest_mass / REST_DENSITY, "L", "scaled", method=(
+            f"body mass minus the named compartments' masses (volume × tissue density), at {REST_DENSITY:g} kg/L"),
+            depends_on=vol_needs, mass=rest_mass)
+        ps.checks.append(_check("masses_within_body_mass", rest_mass >= 0,
+                                f"named compartments {named_mass:.4g} kg (volumes {sum(v.value for v in vols):.4g} L "
+                                f"through their densities) against body mass {bw.value:.4g} kg; rest_of_body "
+                                f"{rest_mass:.4g} kg = {rest_mass / REST_DENSITY:.4g} L at {REST_DENSITY:g} kg/L"))
     systemic = {c: f for c, f in ps.flows.items() if f.origin != "not_applicable"
                 and not is_pulmonary(ps.layout.compartments.get(c, []))}
     flow_gaps = [c for c, f in systemic.items() if f.origin == "gap"]

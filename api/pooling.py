@@ -59,10 +59,13 @@ def pool(values, sds=None, ns=None, sources=()) -> Estimate:
     if len(y) == 1:
         s = None if np.isnan(se[0]) else float(se[0])
         return Estimate(float(y[0]), s, None if np.isnan(sd[0]) else float(sd[0]), None, None,
-                        "single study", 1, srcs)
+                        "single study", 1, srcs, details={"weights": [1.0]})
     if np.all(np.isfinite(se) & (se > 0)):
         mean, se_mean, tau2, i2 = dersimonian_laird(y, se)
+        weights = 1.0 / (se**2 + tau2)
         return Estimate(mean, se_mean, None, float(y.min()), float(y.max()),
-                        "DerSimonian–Laird random effects", len(y), srcs, tau2, i2)
+                        "DerSimonian–Laird random effects", len(y), srcs, tau2, i2,
+                        {"weights": (weights / weights.sum()).tolist()})
     return Estimate(float(y.mean()), None, None, float(y.min()), float(y.max()),
-                    "mean of study values (not every study gives sd and n)", len(y), srcs)
+                    "mean of study values (not every study gives sd and n)", len(y), srcs,
+                    details={"weights": [1.0 / len(y)] * len(y)})

@@ -16,7 +16,7 @@ from collections import defaultdict
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 
-from ..schema.model import FLUID_VOLUME, PARAMETERS, routes, summable_parts
+from ..schema.model import FLUID_VOLUME, PARAMETERS, body_plan, routes, summable_parts
 from .pooling import Estimate, pool
 
 ROW_COLUMNS = ("source_id, row_id, compartment_id, quantity_id, normalisation, value_canonical, sd_canonical, "
@@ -35,6 +35,7 @@ class Resolved:
     notes: list[str] = field(default_factory=list)
     absolute_at: list[float] = field(default_factory=list)  # subjects' body masses when every row is absolute
     reason: str = ""  # why it is a gap
+    verified_share: float | None = None  # share of the estimate's weight resting on rows read in their source
 
     @property
     def ok(self) -> bool:
@@ -49,6 +50,12 @@ def _pool(rows: list[dict]) -> Estimate:
     """Pool rows that carry ``_value`` and ``_sd`` in the target form."""
     return pool([r["_value"] for r in rows], [_float_or_nan(r["_sd"]) for r in rows], [_float_or_nan(r["n"]) for r in rows],
                 [r["source_id"] for r in rows])
+
+
+def _verified_share(rows: list[dict], estimate: Estimate) -> float:
+    """The pooling weight of the rows marked verified (read in their source text)."""
+    weights = estimate.details.get("weights") or [1.0 / len(rows)] * len(rows)
+    return float(sum(w for w, r in zip(weights, rows) if r["verified"]))
 
 
 def _one_route_per_source(rows: list[dict], preference: list[str]) -> list[dict]:
@@ -79,6 +86,11 @@ class Resolver:
             self.groups[(r["quantity_id"], r["compartment_id"])].append(r)
         self._co_cache: dict[float, Resolved] = {}
 
+    @cached_property
+    def plan(self) -> frozenset[str]:
+        taxon = self.store.query("SELECT taxon_class FROM species WHERE id = ?", (self.species,))
+        return body_plan(self.species, taxon[0][0] if taxon else "")
+
     def rows(self, quantity: str, compartment: str) -> list[dict]:
         return self.groups.get((quantity, compartment), [])
 
@@ -87,8 +99,9 @@ class Resolver:
     def body_mass(self) -> Resolved:
         rows = [dict(r, _value=r["value_canonical"], _sd=r["sd_canonical"], _route="body_mass")
                 for r in self.rows("body_mass", "whole_body")]
-        if rows:
-            return Resolved(_pool(rows), rows)
+        if rows:  # body mass rows are themselves the subjects' body mass
+            estimate = _pool(rows)
+            return Resolved(estimate, rows, verified_share=_verified_share(rows, estimate))
         with_mass = [r for r in self.all_rows if r["subject_body_mass_kg"] is not None]
         if with_mass:
             masses = sorted(r["subject_body_mass_kg"] for r in with_mass)
@@ -97,7 +110,7 @@ class Resolver:
             est = Estimate(median, None, None, masses[0], masses[-1],
                            "median of the subjects' body masses on this species' rows", len(masses),
                            tuple(dict.fromkeys(r["source_id"] for r in with_mass)))
-            return Resolved(est, with_mass)
+            return Resolved(est, with_mass, verified_share=sum(bool(r["verified"]) for r in with_mass) / len(with_mass))
         return _gap(f"no body mass stored for {self.species} ({self.life_stage})")
 
     def subject_mass(self, row: dict) -> float:
@@ -192,7 +205,8 @@ class Resolver:
     def _resolved(self, rows: list[dict], notes: list[str]) -> Resolved:
         absolute = [r for r in rows if self._is_absolute(r)]
         at = [self.subject_mass(r) for r in absolute] if len(absolute) == len(rows) else []
-        return Resolved(_pool(rows), rows, notes, at)
+        estimate = _pool(rows)
+        return Resolved(estimate, rows, notes, at, verified_share=_verified_share(rows, estimate))
 
     # ---- one parameter, as the declaration names it -----------------------------------------------
     def resolve(self, parameter: str, compartment: str | None = None) -> Resolved:
@@ -265,7 +279,7 @@ class Resolver:
                        f"within-species allometry over {len(absolute)} rows: {fit.a:.3g}·BW^{fit.b:.3f} "
                        "(95 % prediction interval)", len(absolute),
                        tuple(dict.fromkeys(r["source_id"] for r in absolute)))
-        return Resolved(est, absolute)
+        return Resolved(est, absolute, verified_share=sum(bool(r["verified"]) for r in absolute) / len(absolute))
 
     # ---- blood flows -------------------------------------------------------------------------
     def flow_fraction(self, compartment: str) -> Resolved:
@@ -317,7 +331,7 @@ class Resolver:
     def _from_parts(self, compartment: str, resolve, what: str) -> Resolved:
         """A whole without rows of its own is the sum of its parts, when every part has data."""
         gap = _gap(f"no {what} of {compartment} for {self.species} ({self.life_stage})")
-        parts = summable_parts(compartment, self._parts)
+        parts = summable_parts(compartment, self._parts, self.plan)
         if not parts:
             return gap
         resolved = {p: resolve(p) for p in parts}
@@ -335,4 +349,7 @@ class Resolver:
         notes = sorted({n for r in resolved.values() for n in r.notes})
         at = [m for r in resolved.values() for m in r.absolute_at] \
             if all(r.absolute_at for r in resolved.values()) else []
-        return Resolved(est, rows, notes, at)
+        weights = [r.estimate.value for r in resolved.values()]  # a part weighs what it adds to the whole
+        share = sum(w * r.verified_share for w, r in zip(weights, resolved.values())) / sum(weights) \
+            if sum(weights) > 0 else 0.0
+        return Resolved(est, rows, notes, at, verified_share=share)

@@ -28,7 +28,8 @@ PULMONARY = frozenset({"lung"})
 # have no blood flow of their own (blood carries the cardiac output).
 FLUID_VOLUME = {"blood": "blood_volume", "plasma": "plasma_volume"}
 # Vessels carry part of an organ's flow; they are not extra tissue of the organ they belong to.
-VESSELS = frozenset({"hepatic_artery", "portal_vein"})
+VESSELS_OF_LIVER = ("hepatic_artery", "portal_vein")  # the liver's inflows; their rows feed the liver's flow
+VESSELS = frozenset(VESSELS_OF_LIVER)
 # One-side organs (left_kidney …) are parts of the pair (vocab part_of); the pair is their sum only
 # when both sides are given, so a single side never passes for the pair.
 SIDE_PREFIXES = ("left_", "right_")
@@ -132,12 +133,25 @@ def slot_id(compartment: str, parameter: str) -> str:
     return parameter if parameter in WHOLE_BODY else f"{compartment}.{parameter}"
 
 
-def summable_parts(compartment: str, parts: dict[str, list[str]]) -> list[str]:
-    """The direct parts (vocab part_of) whose sum is the whole: vessels are not extra tissue, and a
-    fluid's parts overlap (arterial blood, plasma, red cells), so a fluid is never summed."""
+# Parts only some animals have: a whole is summed from the parts its species has.
+ONLY_IN = {"crop": "bird", "proventriculus": "bird", "gizzard": "bird",
+           "rumen": "ruminant", "reticulum": "ruminant", "omasum": "ruminant", "abomasum": "ruminant"}
+RUMINANTS = frozenset({"cattle", "sheep", "goat", "water_buffalo"})  # four-chambered stomachs
+
+
+def body_plan(species: str, taxon_class: str) -> frozenset[str]:
+    """The kinds of animal a species is, as ONLY_IN names them."""
+    return frozenset({taxon_class} | ({"ruminant"} if species in RUMINANTS else set()))
+
+
+def summable_parts(compartment: str, parts: dict[str, list[str]], plan: frozenset[str] | None = None) -> list[str]:
+    """The direct parts (vocab part_of) whose sum is the whole: vessels are not extra tissue, a fluid's
+    parts overlap (arterial blood, plasma, red cells) so a fluid is never summed, and with a body plan
+    only the parts that kind of animal has."""
     if compartment in FLUID_VOLUME:
         return []
-    return [p for p in parts.get(compartment, []) if p not in VESSELS]
+    return [p for p in parts.get(compartment, []) if p not in VESSELS
+            and (plan is None or ONLY_IN.get(p) is None or ONLY_IN[p] in plan)]
 
 
 def sub_parts(compartment: str, parts: dict[str, list[str]], exclude: set[str] = frozenset()) -> list[str]:
@@ -165,6 +179,7 @@ def slots(layout, parts: dict[str, list[str]] | None = None) -> list[Slot]:
         out.append(Slot(slot_id(model, "volume"), f"{model} vol", "volume", model, stored[model], quantities))
     for model, members in layout.compartments.items():
         if has_own_flow(members):
-            out.append(Slot(slot_id(model, "blood_flow"), f"{model} flow", "blood_flow", model, stored[model],
-                            routes("blood_flow")))
+            vessels = VESSELS_OF_LIVER if LIVER in members else ()
+            out.append(Slot(slot_id(model, "blood_flow"), f"{model} flow", "blood_flow", model,
+                            stored[model] + vessels, routes("blood_flow")))
     return out
