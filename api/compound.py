@@ -193,7 +193,7 @@ def check_record(record: dict, where, seen: set[str]) -> tuple[Compound | None, 
             error = f"{raw!r}: {key} is a log10 value without unit"
         error = error or _in_range(key, value)
         if error:
-            bad(key, error + f" (expected {HELP[key]})" if "expected" not in error else error)
+            bad(key, error)
         else:
             values[key] = value
     pkas = {}
@@ -213,9 +213,10 @@ def check_record(record: dict, where, seen: set[str]) -> tuple[Compound | None, 
         bad("pka_acid" if len(pkas["pka_acid"]) > 1 else "pka_base",
             f"{len(pkas['pka_acid']) + len(pkas['pka_base'])} pKa values given; at most {MAX_PKA} "
             "(monoprotic or diprotic compounds) are supported; keep the two nearest physiological pH")
+    if isinstance(name, str) and name.strip():
+        seen.add(name.strip())
     if problems:
         return None, problems
-    seen.add(name.strip())
     return Compound(name.strip(), values["log_p"], values["fu_plasma"], values["blood_plasma_ratio"],
                     pkas["pka_acid"], pkas["pka_base"], values.get("log_p_oil")), []
 
@@ -270,8 +271,13 @@ def _from_toml(text: str, name: str) -> list[Compound]:
         if compound:
             compounds.append(compound)
     if problems:
-        raise CompoundError(problems)
+        raise CompoundError(sorted(problems, key=_line_of))
     return compounds
+
+
+def _line_of(problem: str) -> int:
+    m = re.match(r"^.*?:(\d+): ", problem)
+    return int(m.group(1)) if m else 0
 
 
 def _from_csv(text: str, name: str) -> list[Compound]:

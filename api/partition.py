@@ -385,10 +385,10 @@ def _table(species, c, classes, tissue_ids, tparts, plasma, rbc, kp, labels, met
                 "kp_blood": value / c.blood_plasma_ratio[i] if ok else math.nan,
                 "status": "gap" if not ok else ("borrowed" if donors else "computed"),
                 "borrowed_from": ", ".join(donors), "method": labels[i], "sources": ", ".join(sources),
-                "reason": reason, "composition": composition,
+                "reason": reason, "missing": "; ".join(missing), "composition": composition,
             })
     return pd.DataFrame(rows, columns=["compound", "tissue", "kp", "kp_blood", "status", "borrowed_from", "method",
-                                       "sources", "reason", "composition"])
+                                       "sources", "reason", "missing", "composition"])
 
 
 # ---- model compartments of a parameter set --------------------------------------------------------
