@@ -142,9 +142,11 @@ def rodgers_2005(log_p, log_p_oil, fu, ka_ap, ion_plasma, ion_cell, tissue, adip
     negative Ka_AP (a blood:plasma ratio below what partitioning alone gives) counts as 0.
     """
     p = _p_tissue(log_p, log_p_oil, adipose)
-    ka = np.clip(ka_ap, 0.0, None)
+    charged = ion_cell - 1.0
+    with np.errstate(invalid="ignore"):  # no charged species: no electrostatic binding, whatever Ka_AP
+        binding = np.where(charged > 0, np.clip(ka_ap, 0.0, None) * charged, 0.0)
     kpu = (tissue["extracellular_water"] + ion_cell / ion_plasma * tissue["intracellular_water"]
-           + ka * tissue["acidic_phospholipid"] * (ion_cell - 1.0) / ion_plasma
+           + binding * tissue["acidic_phospholipid"] / ion_plasma
            + _lipids(p, tissue["neutral_lipid"], tissue["neutral_phospholipid"]) / ion_plasma)
     return kpu * fu
 
