@@ -148,8 +148,11 @@ def _in_range(key: str, value: float) -> str | None:
     open_low = key in ("fu_plasma", "blood_plasma_ratio")
     if value < low or value > high or (open_low and value <= low):
         bracket = "(" if open_low else "["
-        hint = {"fu_plasma": "; a percentage needs its unit, e.g. '13 %'",
-                "log_p": "; give log10 of the partition coefficient, not the coefficient itself"}.get(key, "")
+        hint = ""
+        if key == "fu_plasma" and 1 < value <= 100:
+            hint = "; a percentage needs its unit, e.g. '13 %'"
+        elif key == "log_p" and value > high:
+            hint = "; give log10 of the partition coefficient, not the coefficient itself"
         return f"{value:g} is outside {bracket}{low:g}, {high:g}]{hint}"
     return None
 
