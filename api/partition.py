@@ -347,48 +347,67 @@ def partition_coefficients(store, species: str, compounds, *, method: str = "rod
     return KpResult(species, life_stage, method, records, table, _composition_frame(parts), notes)
 
 
+def _cell_meta(species, klass, tissue, tpart, plasma, rbc, method, hct, hct_from, hct_sources) -> dict:
+    """What one (binding class, tissue) pair used and lacked; shared by every compound of that class."""
+    needs = _class_roles(klass, method)
+    used = {"tissue": tpart, "plasma": plasma, "rbc": rbc}
+    names = {"tissue": tissue, "plasma": PLASMA, "rbc": RBC}
+    missing = [f"{names[kind]} {r}" for kind, roles in needs.items() for r in roles if r not in used[kind].items]
+    donors = {used[kind].donor for kind in needs if used[kind].donor}
+    sources = list(dict.fromkeys(s for kind, roles in needs.items() for r in roles
+                                 if r in used[kind].items for s in used[kind].items[r].sources))
+    reason = ""
+    if missing:
+        reason = ("no composition stored: " + ", ".join(missing) +
+                  ("" if donors else "; ask to borrow from another species (--borrow-from rat)"))
+    composition = {f"{kind}.{r}": round(used[kind].items[r].value, 6)
+                   for kind, roles in needs.items() for r in roles if r in used[kind].items}
+    if "rbc" in needs:
+        if math.isnan(hct):
+            reason = reason or f"no hematocrit stored for {species}"
+        else:
+            composition["hematocrit"] = round(hct, 4)
+        sources += [s for s in hct_sources if s not in sources]
+        if hct_from and hct_from != species:
+            donors.add(hct_from)
+    return {"reason": reason, "missing": "; ".join(missing), "borrowed_from": ", ".join(sorted(donors)),
+            "sources": ", ".join(sources), "composition": composition}
+
+
 def _table(species, c, classes, tissue_ids, tparts, plasma, rbc, kp, labels, method, hct, hct_from, hct_sources):
-    rows = []
-    for i, name in enumerate(c.names):
-        needs = _class_roles(classes[i], method)
-        for j, tissue in enumerate(tissue_ids):
-            used = {"tissue": tparts[j]}
-            if "plasma" in needs:
-                used["plasma"] = plasma
-            if "rbc" in needs:
-                used["rbc"] = rbc
-            missing = [f"{tissue if kind == 'tissue' else {'plasma': PLASMA, 'rbc': RBC}[kind]} {r}"
-                       for kind, roles in needs.items() for r in roles if r not in used[kind].items]
-            value = float(kp[i, j])
-            donors = sorted({p.donor for p in used.values() if p.donor})
-            sources = list(dict.fromkeys(s for kind, roles in needs.items() for r in roles
-                                         if r in used[kind].items for s in used[kind].items[r].sources))
-            reason = ""
-            if missing:
-                reason = ("no composition stored: " + ", ".join(missing) +
-                          ("" if donors else "; ask to borrow from another species (--borrow-from rat)"))
-            elif not math.isfinite(value):
-                reason = "not computable from these inputs"
-            if "rbc" in needs:
-                if math.isnan(hct):
-                    reason = reason or "no hematocrit stored"
-                sources += [s for s in hct_sources if s not in sources]
-                if hct_from and hct_from != species:
-                    donors = sorted(set(donors) | {hct_from})
-            ok = not reason
-            composition = {f"{kind}.{r}": round(used[kind].items[r].value, 6)
-                           for kind, roles in needs.items() for r in roles if r in used[kind].items}
-            if "rbc" in needs and math.isfinite(hct):
-                composition["hematocrit"] = round(hct, 4)
-            rows.append({
-                "compound": name, "tissue": tissue, "kp": value if ok else math.nan,
-                "kp_blood": value / c.blood_plasma_ratio[i] if ok else math.nan,
-                "status": "gap" if not ok else ("borrowed" if donors else "computed"),
-                "borrowed_from": ", ".join(donors), "method": labels[i], "sources": ", ".join(sources),
-                "reason": reason, "missing": "; ".join(missing), "composition": composition,
-            })
-    return pd.DataFrame(rows, columns=["compound", "tissue", "kp", "kp_blood", "status", "borrowed_from", "method",
-                                       "sources", "reason", "missing", "composition"])
+    """One row per compound × tissue, built by indexing a small (class × tissue) table of provenance."""
+    kinds = sorted(set(classes))
+    meta = [[_cell_meta(species, k, t, p, plasma, rbc, method, hct, hct_from, hct_sources)
+             for t, p in zip(tissue_ids, tparts)] for k in kinds]
+    k_index = np.searchsorted(np.array(kinds), classes)
+    n, m = kp.shape
+
+    def gather(key):
+        grid = np.empty((len(kinds), m), dtype=object)
+        for a, row in enumerate(meta):
+            for b, cell in enumerate(row):
+                grid[a, b] = cell[key]
+        return grid[k_index].ravel()
+
+    reason = gather("reason")
+    donors = gather("borrowed_from")
+    value = kp.ravel()
+    no_reason = reason == ""
+    bad = no_reason & ~np.isfinite(value)
+    reason = np.where(bad, "not computable from these inputs", reason)
+    ok = no_reason & ~bad
+    value = np.where(ok, value, np.nan)
+    status = np.where(~ok, "gap", np.where(donors != "", "borrowed", "computed"))
+    return pd.DataFrame({
+        "compound": np.repeat(np.array(c.names, dtype=object), m),
+        "tissue": np.tile(np.array(tissue_ids, dtype=object), n),
+        "kp": value,
+        "kp_blood": value / np.repeat(c.blood_plasma_ratio, m),
+        "status": status, "borrowed_from": donors,
+        "method": np.repeat(labels.astype(object), m),
+        "sources": gather("sources"), "reason": reason, "missing": gather("missing"),
+        "composition": gather("composition"),
+    })
 
 
 # ---- model compartments of a parameter set --------------------------------------------------------
