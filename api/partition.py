@@ -275,7 +275,7 @@ def _hematocrit(store, species, life_stage, donors) -> tuple[float, str, tuple[s
 
 
 def partition_coefficients(store, species: str, compounds, *, method: str = "rodgers_rowland",
-                           life_stage: str = "adult", borrow_from: str | None = None,
+                           life_stage: str = "adult", borrow_from: str | bool | None = None,
                            tissues: list[str] | None = None) -> KpResult:
     """Kp of every tissue of ``species`` for each compound, with composition provenance.
 
@@ -283,8 +283,13 @@ def partition_coefficients(store, species: str, compounds, *, method: str = "rod
     those. ``method``: "rodgers_rowland" (2005 equation for moderate-to-strong bases, 2006
     otherwise), "poulin_theil" or "berezhkovskiy" (Poulin & Theil with the Berezhkovskiy
     correction). ``borrow_from``: None (a tissue with incomplete composition is a gap), a
-    species id, or "closest" (same taxon class, rat first); every borrowed Kp names its donor.
+    species id, True (rat), or "closest" (same taxon class, rat first); every borrowed Kp names
+    its donor.
     """
+    if borrow_from is True:
+        borrow_from = DEFAULT_DONOR
+    elif borrow_from is False:
+        borrow_from = None
     if method not in METHODS:
         raise PartitionError(f"unknown method {method!r}; use one of {', '.join(METHODS)}")
     store.require("species", species, "species")
@@ -338,6 +343,11 @@ def partition_coefficients(store, species: str, compounds, *, method: str = "rod
             kp = np.where(col(~strong), other, kp)
         labels = np.where(strong, RR2005 + " (moderate-to-strong base)", RR2006 + " (" + np.where(
             classes == "albumin", "acid or zwitterion; albumin", "neutral or weak base; lipoprotein") + ")")
+    held = set(composition_coverage(store, life_stage=life_stage)["compartment"])
+    for kind, comp in (("plasma", PLASMA), ("rbc", RBC)):
+        if kind in needs and comp not in held:
+            notes.append(f"no species in the store has {comp} composition ({life_stage}) "
+                         f"({', '.join(needs[kind])}); borrowing cannot fill it: curate a source")
     table = _table(species, c, classes, tissue_ids, tparts, plasma, rbc, kp, labels, method, hct, hct_from, hct_sources)
     parts = {t: p for t, p in zip(tissue_ids, tparts)}
     if needs.get("plasma"):

@@ -35,13 +35,15 @@ def render_table(result, file=None) -> None:
                           ("Kp tissue:blood", "right"), ("how", "left"), ("method", "left"), ("sources", "left")):
         table.add_column(name, justify=justify, overflow="fold")
     for r in result.table.itertuples(index=False):
+        sources = r.sources
         if r.status == "gap":
-            kp = kpb = "[bold red]gap[/]"
-            how = "[bold red]gap[/]"
+            kp = kpb = how = "[bold red]gap[/]"
+            needs = list(dict.fromkeys(m.split(" ")[0] for m in r.missing.split("; ") if m))
+            sources = f"needs {', '.join(needs)} composition" if needs else r.reason
         else:
             kp, kpb = f"{r.kp:.3g}", f"{r.kp_blood:.3g}"
             how = f"[yellow]borrowed from {r.borrowed_from}[/]" if r.status == "borrowed" else "computed"
-        table.add_row(r.compound, r.tissue, kp, kpb, how, _short(r.method), r.sources)
+        table.add_row(r.compound, r.tissue, kp, kpb, how, _short(r.method), sources)
     console.print(table)
     console.print(f"pH: plasma and interstitial {7.4}, intracellular {7.0}, erythrocytes {7.22}; "
                   "Kp tissue:blood = Kp tissue:plasma / blood:plasma ratio", highlight=False)
