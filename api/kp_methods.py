@@ -13,7 +13,11 @@ methods, each written from its paper:
   constant comes from the blood:plasma ratio;
 * Rodgers & Rowland 2006 (J Pharm Sci 95:1238–1257) for acids, very weak bases, neutrals
   and zwitterions, with binding to albumin (acids, zwitterions) or lipoproteins
-  (neutrals, very weak bases) scaled from plasma by the tissue:plasma protein ratio.
+  (neutrals, very weak bases) scaled from plasma by the tissue:plasma protein ratio (which
+  protein for which class is from memory); zwitterions with a basic pKa ≥ 7 take the 2005
+  equation, binding through their basic group.
+
+(Journal pages from memory.)
 
 Composition inputs are volume fractions of tissue (water, extracellular and intracellular
 water, neutral lipid, neutral phospholipid) and acidic phospholipid in mg/g wet tissue.
@@ -58,6 +62,15 @@ def ionisation(ph, acid_low, acid_high, base_high, base_low):
     """
     return (1.0 + _pow10(ph - acid_low) + _pow10(2 * ph - acid_low - acid_high)
             + _pow10(base_high - ph) + _pow10(base_high + base_low - 2 * ph))
+
+
+def cationic(ph, base_high, base_low):
+    """Cationic over un-ionised concentration: the part that binds acidic phospholipids.
+
+    For a base this is the ionisation term minus one; for a zwitterion only its basic group
+    counts (Rodgers & Rowland 2006, from memory).
+    """
+    return _pow10(base_high - ph) + _pow10(base_high + base_low - 2 * ph)
 
 
 def oil_log_p(log_p, log_p_oil=None):
@@ -119,30 +132,32 @@ def _p_tissue(log_p, log_p_oil, adipose):
     return np.where(adipose, np.power(10.0, oil_log_p(log_p, log_p_oil)), np.power(10.0, log_p))
 
 
-def acidic_phospholipid_affinity(log_p, fu, bp, hematocrit, ion_plasma, ion_rbc, rbc):
+def acidic_phospholipid_affinity(log_p, fu, bp, hematocrit, ion_plasma, ion_rbc, cation_rbc, rbc):
     """Ka_AP (per mg/g) from the blood:plasma ratio, Rodgers et al. 2005.
 
     Kpu,BC = (Hct − 1 + B:P) / (fu · Hct); Ka_AP = [Kpu,BC − (X_BC/Y) f_IW,BC −
-    (P f_NL,BC + (0.3P + 0.7) f_NP,BC)/Y] · Y / ([AP⁻]_BC (X_BC − 1)), with X_BC the
-    ionisation term at erythrocyte pH 7.22 and Y at plasma pH 7.4.
+    (P f_NL,BC + (0.3P + 0.7) f_NP,BC)/Y] · Y / ([AP⁻]_BC · 10^(pKa − pH_BC)), with X_BC the
+    ionisation term at erythrocyte pH 7.22, Y at plasma pH 7.4, and 10^(pKa − pH_BC) the
+    cationic term (``cation_rbc``; for a base X_BC − 1).
     """
     p = np.power(10.0, log_p)
     kpu_bc = (hematocrit - 1.0 + bp) / (fu * hematocrit)
     rest = (ion_rbc / ion_plasma) * rbc["intracellular_water"] + \
         _lipids(p, rbc["neutral_lipid"], rbc["neutral_phospholipid"]) / ion_plasma
     with np.errstate(divide="ignore", invalid="ignore"):
-        return (kpu_bc - rest) * ion_plasma / (rbc["acidic_phospholipid"] * (ion_rbc - 1.0))
+        return (kpu_bc - rest) * ion_plasma / (rbc["acidic_phospholipid"] * cation_rbc)
 
 
-def rodgers_2005(log_p, log_p_oil, fu, ka_ap, ion_plasma, ion_cell, tissue, adipose):
+def rodgers_2005(log_p, log_p_oil, fu, ka_ap, ion_plasma, ion_cell, cation_cell, tissue, adipose):
     """Kp of a moderate-to-strong base, Rodgers, Leahy & Rowland 2005.
 
-    Kpu = f_EW + (X/Y) f_IW + Ka_AP [AP⁻]_T (X − 1)/Y + (P f_NL + (0.3P + 0.7) f_NP)/Y;
-    Kp = Kpu · fu. X: ionisation term at intracellular pH 7.0; Y: at plasma pH 7.4; a
-    negative Ka_AP (a blood:plasma ratio below what partitioning alone gives) counts as 0.
+    Kpu = f_EW + (X/Y) f_IW + Ka_AP [AP⁻]_T 10^(pKa − pH_IW)/Y + (P f_NL + (0.3P + 0.7) f_NP)/Y;
+    Kp = Kpu · fu. X: ionisation term at intracellular pH 7.0; Y: at plasma pH 7.4;
+    10^(pKa − pH_IW) the cationic term (``cation_cell``). A negative Ka_AP (a blood:plasma
+    ratio below what partitioning alone gives) counts as 0.
     """
     p = _p_tissue(log_p, log_p_oil, adipose)
-    charged = ion_cell - 1.0
+    charged = cation_cell
     with np.errstate(invalid="ignore"):  # no charged species: no electrostatic binding, whatever Ka_AP
         binding = np.where(charged > 0, np.clip(ka_ap, 0.0, None) * charged, 0.0)
     kpu = (tissue["extracellular_water"] + ion_cell / ion_plasma * tissue["intracellular_water"]

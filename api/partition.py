@@ -330,8 +330,10 @@ def partition_coefficients(store, species: str, compounds, *, method: str = "rod
                 notes.append(f"hematocrit borrowed from {hct_from}")
             R = {role: np.array([rbc.items[role].value if role in rbc.items else np.nan]) for role in ROLES}
             x_bc = km.ionisation(km.PH_ERYTHROCYTE, *pk)
-            ka = km.acidic_phospholipid_affinity(logp, fu, bp, hct, y, x_bc, R)
-            base = km.rodgers_2005(logp, logp_oil, fu, ka, y, x, T, adipose)
+            cat_bc = km.cationic(km.PH_ERYTHROCYTE, pk[2], pk[3])
+            ka = km.acidic_phospholipid_affinity(logp, fu, bp, hct, y, x_bc, cat_bc, R)
+            base = km.rodgers_2005(logp, logp_oil, fu, ka, y, x, km.cationic(km.PH_INTRACELLULAR, pk[2], pk[3]),
+                                   T, adipose)
             kp = np.where(col(strong), base, kp)
             negative = strong & (ka[:, 0] < 0)
             for i in np.flatnonzero(negative):

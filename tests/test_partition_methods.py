@@ -61,6 +61,9 @@ def test_ionisation_henderson_hasselbalch():
     # zwitterion (Rodgers & Rowland 2006): 1 + 10^(pKa,base − pH) + 10^(pH − pKa,acid); 9, 3 at 7.4
     assert float(ion(7.4, acid=[3.0], base=[9.0])) == pytest.approx(1 + 10 ** 1.6 + 10 ** 4.4)
     assert float(ion(7.4)) == 1.0
+    # only the basic group of a zwitterion is cationic: 10^(9 − 7) = 100, whatever the acid
+    assert float(km.cationic(7.0, np.array(9.0), np.array(NAN))) == pytest.approx(100.0)
+    assert float(km.cationic(7.0, np.array(NAN), np.array(NAN))) == 0.0
 
 
 # ---- Poulin & Theil 2002 --------------------------------------------------------------------------
@@ -129,10 +132,24 @@ def test_rodgers_2005_base_hand_worked_muscle():
     # Kpu = 0.118 + (101/40.8107)·0.63 + 1.479534·1.53·100/40.8107 + (100·0.01 + 30.7·0.0072)/40.8107
     #     = 0.118 + 1.559150 + 5.546818 + 0.029920 = 7.253888; Kp = 0.5·Kpu = 3.62694
     y, x, xbc = ion(7.4, base=[9.0]), ion(7.0, base=[9.0]), ion(7.22, base=[9.0])
-    ka = km.acidic_phospholipid_affinity(np.array(2.0), np.array(0.5), np.array(1.0), 0.45, y, xbc, arr(RBC))
+    b, none = np.array(9.0), np.array(NAN)
+    ka = km.acidic_phospholipid_affinity(np.array(2.0), np.array(0.5), np.array(1.0), 0.45, y, xbc,
+                                         km.cationic(7.22, b, none), arr(RBC))
     assert float(ka[0]) == pytest.approx(1.479534, rel=1e-4)
-    kp = km.rodgers_2005(np.array(2.0), np.array(NAN), np.array(0.5), ka, y, x, arr(R_MUSCLE), np.array([False]))
+    kp = km.rodgers_2005(np.array(2.0), np.array(NAN), np.array(0.5), ka, y, x, km.cationic(7.0, b, none),
+                         arr(R_MUSCLE), np.array([False]))
     assert float(kp[0]) == pytest.approx(3.62694, rel=1e-4)
+
+
+def test_rodgers_2005_zwitterion_binds_through_its_basic_group_only():
+    # zwitterion pKa,base 9, pKa,acid 3, log P 1, fu 1, Ka_AP 1 per mg/g, rat muscle:
+    # X = 1 + 10^2 + 10^4 = 10101, Y = 1 + 10^1.6 + 10^4.4 = 25159.58, cation = 10^2 = 100
+    # Kpu = 0.118 + (10101/25159.58)·0.63 + 1·1.53·100/25159.58 + (10·0.01 + 3.7·0.0072)/25159.58
+    #     = 0.118 + 0.252933 + 0.006081 + 0.000005 = 0.377019
+    y, x = ion(7.4, acid=[3.0], base=[9.0]), ion(7.0, acid=[3.0], base=[9.0])
+    kp = km.rodgers_2005(np.array(1.0), np.array(NAN), np.array(1.0), np.array(1.0), y, x,
+                         km.cationic(7.0, np.array(9.0), np.array(NAN)), arr(R_MUSCLE), np.array([False]))
+    assert float(kp[0]) == pytest.approx(0.377019, rel=1e-4)
 
 
 # ---- a scalar, term-by-term rewrite of Rodgers & Rowland, against the vectorised code ------------
@@ -177,8 +194,10 @@ def _all_methods(c, t_rr, t_pt, adipose):
     ad = np.array([adipose])
     out = [km.poulin_theil(logp, np.array(NAN), y, fu, arr(t_pt), arr(H_PLASMA), ad, berezhkovskiy=b)
            for b in (False, True)]
-    ka = km.acidic_phospholipid_affinity(logp, fu, np.array(c["bp"]), 0.45, y, xbc, arr(RBC))
-    out.append(km.rodgers_2005(logp, np.array(NAN), fu, ka, y, x, arr(t_rr), ad))
+    bh = np.array(base[0] if base else NAN)
+    ka = km.acidic_phospholipid_affinity(logp, fu, np.array(c["bp"]), 0.45, y, xbc,
+                                         km.cationic(7.22, bh, np.array(NAN)), arr(RBC))
+    out.append(km.rodgers_2005(logp, np.array(NAN), fu, ka, y, x, km.cationic(7.0, bh, np.array(NAN)), arr(t_rr), ad))
     out.append(km.rodgers_2006(logp, np.array(NAN), fu, y, x, arr(t_rr), arr(H_PLASMA),
                                np.array([t_rr["albumin_ratio"]]), ad))
     return out
@@ -240,7 +259,7 @@ def test_unionised_acid_and_base_reduce_to_neutral(logp, fu, adipose):
     assert rr2006(base=[-4.0]) == pytest.approx(neutral, rel=1e-9)   # base pKa far below every pH
     # the 2005 equation with no ionisation: water, lipids, and no acidic phospholipid binding
     kp05 = float(km.rodgers_2005(*args, np.array([5.0]), ion(7.4, base=[-4.0]), ion(7.0, base=[-4.0]),
-                                 arr(t), ad)[0])
+                                 km.cationic(7.0, np.array(-4.0), np.array(NAN)), arr(t), ad)[0])
     lipids = 10 ** float(km.oil_log_p(logp) if adipose else logp)
     expected = fu * (t["extracellular_water"] + t["intracellular_water"] + lipids * t["neutral_lipid"]
                      + (0.3 * lipids + 0.7) * t["neutral_phospholipid"])

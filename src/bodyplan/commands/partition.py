@@ -64,7 +64,18 @@ def render_table(result, file=None) -> None:
     console.print(CAUTION, highlight=False)
 
 
-@click.command("kp")
+EXAMPLE = """\b
+A compound file (TOML; CSV takes the same names as columns, pKa lists separated by ';'):
+  [[compound]]
+  name = "example_base"
+  log_p = 3.0            # octanol:water, un-ionised form
+  pka_base = 9.5         # or pka_acid = [3.1, 9.8]; at most two pKa values
+  fu_plasma = 0.2        # or "20 %"
+  blood_plasma_ratio = 0.9
+"""
+
+
+@click.command("kp", epilog=EXAMPLE)
 @click.argument("species")
 @click.option("--compound", "compound_file", required=True, type=click.Path(dir_okay=False),
               help="Compounds: a .toml file of [[compound]] tables or a .csv file (name, log_p, log_p_oil, "
@@ -92,6 +103,8 @@ def kp_cmd(species, compound_file, method, berezhkovskiy, borrow_from, borrow, l
         raise PartitionError("--berezhkovskiy corrects the Poulin & Theil method; add --method poulin-theil")
     if borrow and borrow_from:
         raise PartitionError("give either --borrow (from rat) or --borrow-from SPECIES, not both")
+    if out_path and fmt == "table":
+        raise PartitionError("--out writes csv or json; add --format csv or --format json")
     api_method = "berezhkovskiy" if berezhkovskiy else METHOD_CHOICES[method]
     result = open_store(store_path).partition_coefficients(
         species, compound_file, method=api_method, life_stage=life_stage,
