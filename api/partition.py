@@ -55,6 +55,7 @@ class Item:
     rows: tuple[str, ...]      # source:row_id of each curated row used
     sources: tuple[str, ...]
     how: str                   # "1 row", "2 rows agree", "mean of 2 differing rows", "sum of …"
+    verified: bool = True      # every row behind it was read in its source
 
 
 def _combine(rows: pd.DataFrame, species: str) -> Item:
@@ -67,7 +68,7 @@ def _combine(rows: pd.DataFrame, species: str) -> Item:
         how = f"{len(rows)} rows agree"  # the same number printed in several sources
     else:
         how = f"mean of {len(rows)} differing rows"
-    return Item(float(values.mean()), species, ids, sources, how)
+    return Item(float(values.mean()), species, ids, sources, how, bool(rows["verified"].all()))
 
 
 def species_composition(store, species: str, life_stage: str = "adult") -> dict[tuple[str, str], Item]:
@@ -87,7 +88,7 @@ def species_composition(store, species: str, life_stage: str = "adult") -> dict[
         if (comp, "water") not in out and ew and iw:
             out[(comp, "water")] = Item(ew.value + iw.value, species, ew.rows + iw.rows,
                                         tuple(dict.fromkeys(ew.sources + iw.sources)),
-                                        "sum of extracellular and intracellular water")
+                                        "sum of extracellular and intracellular water", ew.verified and iw.verified)
     return out
 
 
@@ -254,9 +255,10 @@ def _composition_frame(parts: dict[str, Part]) -> pd.DataFrame:
         for role, item in part.items.items():
             rows.append({"compartment": comp, "role": role, "quantity": ROLES[role], "value": item.value,
                          "species": item.species, "borrowed_from": part.donor, "how": item.how,
+                         "verified": item.verified,
                          "sources": ", ".join(item.sources), "rows": ", ".join(item.rows)})
     return pd.DataFrame(rows, columns=["compartment", "role", "quantity", "value", "species", "borrowed_from",
-                                       "how", "sources", "rows"])
+                                       "how", "verified", "sources", "rows"])
 
 
 def _array(parts: list[Part], role: str) -> np.ndarray:
@@ -382,7 +384,10 @@ def _cell_meta(species, klass, tissue, tpart, plasma, rbc, method, hct, hct_from
         sources += [s for s in hct_sources if s not in sources]
         if hct_from and hct_from != species:
             donors.add(hct_from)
+    verified = all(used[kind].items[r].verified for kind, roles in needs.items() for r in roles
+                   if r in used[kind].items)
     return {"reason": reason, "missing": "; ".join(missing), "borrowed_from": ", ".join(sorted(donors)),
+            "composition_verified": verified,
             "sources": ", ".join(sources), "composition": composition}
 
 
@@ -417,6 +422,7 @@ def _table(species, c, classes, tissue_ids, tparts, plasma, rbc, kp, labels, met
         "kp_blood": value / np.repeat(c.blood_plasma_ratio, m),
         "status": status, "borrowed_from": donors,
         "method": np.repeat(labels.astype(object), m),
+        "composition_verified": gather("composition_verified").astype(bool),
         "sources": gather("sources"), "reason": reason, "missing": gather("missing"),
         "composition": gather("composition"),
     })

@@ -83,6 +83,11 @@ def test_rat_kp_against_the_equations(store):
            + (1 / 0.05 - 1 - (P * 0.0023 + (0.3 * P + 0.7) * 0.0013) / y) * 0.064)
     assert res.kp("acid_b", "muscle") == pytest.approx(0.05 * kpu, rel=1e-9)
     assert "Rodgers & Rowland 2006" in res.table.set_index(["compound", "tissue"]).loc[("acid_b", "muscle"), "method"]
+    # a Kp is marked verified only when every composition row behind it was read in its source
+    rows = store.values(species="rat", compartment="muscle")
+    rows = rows[rows["quantity"].str.contains("water|lipid|phospholipid|albumin")]
+    assert res.table.set_index(["compound", "tissue"]).loc[("acid_b", "muscle"), "composition_verified"] == \
+        bool(rows["verified"].all())
     base = res.table.set_index(["compound", "tissue"]).loc[("base_a", "liver")]
     assert base["method"].startswith("Rodgers, Leahy & Rowland 2005")
     assert "kptest2026" in base["sources"] and "rodgers2005" in base["sources"]

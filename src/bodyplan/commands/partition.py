@@ -47,6 +47,10 @@ def render_table(result, file=None) -> None:
     console.print(table)
     console.print(f"pH: plasma and interstitial {7.4}, intracellular {7.0}, erythrocytes {7.22}; "
                   "Kp tissue:blood = Kp tissue:plasma / blood:plasma ratio", highlight=False)
+    done = result.table[result.table["status"] != "gap"]
+    if len(done) and not done["composition_verified"].all():
+        console.print("composition behind these Kp is marked unverified in the store (recalled, not read in the "
+                      "source); --format json lists every row used", highlight=False)
     for note in result.notes:
         console.print(f"note: {note}", highlight=False)
     gaps = result.gaps
