@@ -91,7 +91,7 @@ class Compounds:
         return len(self.names)
 
     @classmethod
-    def of(cls, compounds: list[Compound]) -> "Compounds":
+    def of(cls, compounds: list[Compound]) -> Compounds:
         def col(get):
             return np.array([get(c) for c in compounds], dtype=float)
 
@@ -248,8 +248,8 @@ def read_compounds(path: str | Path) -> list[Compound]:
         return _from_toml(text, str(path))
     if path.suffix.lower() == ".csv":
         return _from_csv(text, str(path))
-    raise CompoundError([f"{path}:1: file: give a .toml file ([[compound]] tables) or a .csv file "
-                         f"with the columns {', '.join(FIELDS)}"])
+    raise CompoundError([(f"{path}:1: file: give a .toml file ([[compound]] tables) or a .csv file "
+                          f"with the columns {', '.join(FIELDS)}")])
 
 
 def _from_toml(text: str, name: str) -> list[Compound]:
@@ -262,14 +262,14 @@ def _from_toml(text: str, name: str) -> list[Compound]:
     other = [k for k in data if k != "compound"]
     problems = [f"{name}:1: {k}: unknown top-level key; put each compound in a [[compound]] table" for k in other]
     if not isinstance(tables, list) or not tables:
-        raise CompoundError(problems + [f"{name}:1: compound: no [[compound]] table; add one per compound "
-                                        f"with {', '.join(REQUIRED)}"])
+        raise CompoundError(problems + [(f"{name}:1: compound: no [[compound]] table; add one per compound "
+                                         f"with {', '.join(REQUIRED)}")])
     lines = _toml_lines(text)
     seen: set[str] = set()
     compounds = []
     for i, record in enumerate(tables):
         header, keys = lines[i] if i < len(lines) else (1, {})
-        compound, found = check_record(record, lambda key: f"{name}:{keys.get(key, header)}", seen)
+        compound, found = check_record(record, lambda key, k=keys, h=header: f"{name}:{k.get(key, h)}", seen)
         problems += found
         if compound:
             compounds.append(compound)
