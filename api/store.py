@@ -107,6 +107,12 @@ class Store:
 
         return gap_report(self, species, life_stage=life_stage, layout=layout)
 
+    def partition_coefficients(self, species: str, compounds, **options):
+        """Tissue:plasma Kp from tissue composition; see :func:`bodyplan.api.partition.partition_coefficients`."""
+        from .partition import partition_coefficients
+
+        return partition_coefficients(self, species, compounds, **options)
+
     def allometry(self, quantity: str, **options):
         """Cross-species power-law fit; see :func:`bodyplan.api.allometry.allometry`."""
         from .allometry import allometry

@@ -26,6 +26,7 @@ COMMANDS = {  # command name → "module:function" under bodyplan.commands
     "trace": "curator:trace_cmd",
     "diff": "curator:diff_cmd",
     "export": "curator:export_cmd",
+    "kp": "partition:kp_cmd",
 }
 
 
