@@ -17,19 +17,9 @@ import numpy as np
 import pandas as pd
 
 from . import kp_methods as km
+from ..schema.model import COMPOSITION as ROLES
 from .compound import Compound, Compounds, compounds_from
 
-# composition role → stored quantity id (the one place a role is tied to a quantity)
-ROLES = {
-    "water": "tissue_water_fraction",
-    "extracellular_water": "tissue_extracellular_water_fraction",
-    "intracellular_water": "tissue_intracellular_water_fraction",
-    "neutral_lipid": "tissue_neutral_lipid_fraction",
-    "neutral_phospholipid": "tissue_neutral_phospholipid_fraction",
-    "acidic_phospholipid": "acidic_phospholipid_concentration",
-    "albumin_ratio": "albumin_ratio",
-    "lipoprotein_ratio": "lipoprotein_ratio",
-}
 PLASMA, RBC = "plasma", "red_blood_cells"
 NOT_TISSUES = {PLASMA, RBC, "blood", "arterial_blood", "whole_body"}
 METHODS = {

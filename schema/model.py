@@ -79,7 +79,8 @@ PARAMETERS: dict[str, Parameter] = {p.id: p for p in (
               ("blood_flow_fraction", "blood_flow")),
     # Room for computed parameters: partition coefficients come from tissue composition and a compound.
     Parameter("partition_coefficient", "tissue:plasma partition coefficient", "1", ("1", 1.0),
-              "tissue:plasma concentration ratio", (), None, computed="tissue composition and compound properties"),
+              "tissue:plasma concentration ratio", (), None,
+              computed="tissue composition (COMPOSITION) and compound properties, in api/partition.py"),
 )}
 # Shares of body mass that give an absolute quantity when multiplied by the subjects' body mass. (Water
 # fractions are left out: kg of water become litres only through a density.)
@@ -87,6 +88,17 @@ BODY_MASS_SHARES = {"tissue_mass": "tissue_mass_fraction"}
 # Shares whose values within one source and group cannot sum above the whole (its body mass, its cardiac
 # output); a source's flow shares may exceed it by a rounding tolerance.
 SHARES_OF_A_WHOLE = {"tissue_mass_fraction": 1.0, "blood_flow_fraction": 1.1}
+# The tissue composition partition coefficients are computed from: role → stored quantity.
+COMPOSITION = {
+    "water": "tissue_water_fraction",
+    "extracellular_water": "tissue_extracellular_water_fraction",
+    "intracellular_water": "tissue_intracellular_water_fraction",
+    "neutral_lipid": "tissue_neutral_lipid_fraction",
+    "neutral_phospholipid": "tissue_neutral_phospholipid_fraction",
+    "acidic_phospholipid": "acidic_phospholipid_concentration",
+    "albumin_ratio": "albumin_ratio",
+    "lipoprotein_ratio": "lipoprotein_ratio",
+}
 WHOLE_BODY = ("body_mass", "cardiac_output", "gfr", "hematocrit")  # reported by every set, in this order
 COMPARTMENT = ("volume", "blood_flow")  # reported for every model compartment
 

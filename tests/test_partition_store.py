@@ -160,7 +160,7 @@ def test_json_is_strict_and_csv_flat(store):
 
 def test_model_compartments_are_volume_weighted(store):
     res = store.partition_coefficients("rat", COMPOUNDS)
-    ps = store.parameter_set("rat", body_weight="250 g", layout="rich_slow")
+    ps = store.parameter_set("rat", body_mass="250 g", layout="rich_slow")
     model = model_partition_coefficients(res, ps, store).set_index(["compound", "compartment"])
     assert model.loc[("neutral_c", "liver"), "kp"] == pytest.approx(res.kp("neutral_c", "liver"))
     row = model.loc[("neutral_c", "richly_perfused")]
@@ -177,7 +177,7 @@ def test_model_compartments_are_volume_weighted(store):
     assert slow["status"] == "gap" and "bone" in slow["reason"]
     assert model.loc[("neutral_c", "blood"), "status"] == "gap"  # no tissue composition for blood
     with pytest.raises(PartitionError):
-        model_partition_coefficients(res, store.parameter_set("dog", body_weight="10 kg"), store)
+        model_partition_coefficients(res, store.parameter_set("dog", body_mass="10 kg"), store)
 
 
 def test_coverage_helper(store):
