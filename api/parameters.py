@@ -10,8 +10,8 @@ import numpy as np
 import pandas as pd
 
 from .. import CAUTION
-from ..schema.model import (LIVER, PARAMETERS, PORTAL_ORGANS, SHARES_OF_A_WHOLE, VESSELS_OF_LIVER, has_own_flow,
-                            is_portal, is_pulmonary, parameter_of, slot_id)
+from ..schema.model import (LIVER, PARAMETERS, PORTAL_ORGANS, SHARES_OF_A_WHOLE, VESSELS_OF_LIVER, circulation,
+                            has_own_flow, is_portal, is_pulmonary, parameter_of, slot_id)
 from .layouts import REST, Layout, load_layout
 from .pooling import Estimate
 from .resolve import SAME_BODY_WEIGHT, Resolved, Resolver
@@ -192,6 +192,7 @@ class ParameterSet:
             "body_mass": self.body_mass.as_dict(),
             "cardiac_output": self._unit_cell("cardiac_output", self.cardiac_output).as_dict(),
             "liver_flow": self.liver_flow,
+            "circulation": circulation(self.layout.compartments, REST),
             "physiology": {name: self._unit_cell(name, cell).as_dict() for name, cell in self.physiology.items()},
             "compartments": [
                 {"compartment": comp, "stored_compartments": self.layout.compartments.get(comp, []),

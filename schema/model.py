@@ -50,6 +50,27 @@ def has_own_flow(parts) -> bool:
     return not set(parts) <= set(FLUID_VOLUME)
 
 
+def circulation(compartments: dict[str, list[str]], rest: str) -> list[dict]:
+    """Where each model compartment's blood comes from and where its venous outflow goes, so a program
+    can build the model without reading sentences. Blood (the layout's fluid compartment) is the pool
+    the heart pumps from and returns to; the lungs take the whole cardiac output from it and return it;
+    a portal compartment drains into the liver, which returns its own inflow (hepatic artery, or the
+    total hepatic flow when no compartment is portal) and the portal outflow to blood."""
+    blood = next((m for m, parts in compartments.items() if not has_own_flow(parts)), "blood")
+    liver = next((m for m, parts in compartments.items() if LIVER in parts), None)
+    portal = [m for m, parts in compartments.items() if is_portal(parts)] if liver else []
+    out = []
+    for model, parts in [*compartments.items(), (rest, [])]:
+        if model == blood:
+            continue
+        entry = {"compartment": model, "receives_from": [blood], "drains_to": liver if model in portal else blood,
+                 "flow": "cardiac_output" if is_pulmonary(parts) else "blood_flow"}
+        if model == liver:
+            entry["receives_from"] = [blood, *portal]
+        out.append(entry)
+    return out
+
+
 def is_side(compartment: str) -> bool:
     return compartment.startswith(SIDE_PREFIXES)
 
