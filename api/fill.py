@@ -9,7 +9,9 @@ from __future__ import annotations
 
 from .parameters import Cell
 
-MIN_SPECIES = 3
+MIN_SPECIES = 3  # a fit with intervals needs three species of the animal's own class
+MAX_INTERVAL_RATIO = 10.0  # a fill whose 95 % prediction interval spans more than this factor is no use
+PLAUSIBLE_MARGIN = 2.0  # a fill beyond the peers' own range (per kg body mass, or per kg tissue) by this factor
 
 
 def _peer_sets(store, species: str, stage: str, layout) -> dict:
@@ -29,8 +31,11 @@ def _taxon(store, species: str) -> str:
     return store.query("SELECT taxon_class FROM species WHERE id = ?", (species,))[0][0]
 
 
-def allometric_cell(store, species: str, stage: str, layout, pick, body_mass: float, unit: str) -> Cell | None:
-    """Fill one gap; ``pick(parameter_set) -> Cell`` selects the parameter. None if too few species."""
+def allometric_cell(store, species: str, stage: str, layout, pick, body_mass: float, unit: str,
+                    per=None) -> tuple[Cell | None, str]:
+    """Fill one gap from species of the same class; ``pick(parameter_set) -> Cell`` selects the parameter.
+    ``per(parameter_set) -> float`` gives the quantity a plausible value is judged per (body mass, or the
+    compartment's volume for a flow). Returns the cell, or None and why no fill is given."""
     from .allometry import fit_power_law
 
     peers = _peer_sets(store, species, stage, layout)
@@ -40,40 +45,73 @@ def allometric_cell(store, species: str, stage: str, layout, pick, body_mass: fl
         cell = pick(ps)
         if cell is None or cell.origin in ("gap", "not_applicable") or ps.body_mass.origin == "gap":
             continue
-        if cell.value is None or cell.value <= 0:
+        if cell.value is None or cell.value <= 0 or _taxon(store, other) != own_class:
             continue
-        points.append((other, ps.body_mass.value, cell.value, _taxon(store, other), cell.sources))
-    same = [p for p in points if p[3] == own_class]
-    chosen, scope = (same, f"{own_class}s") if len(same) >= MIN_SPECIES else (points, "all classes")
-    if len(chosen) < MIN_SPECIES:
-        return None
-    fit = fit_power_law([p[1] for p in chosen], [p[2] for p in chosen], [p[0] for p in chosen])
+        points.append((other, ps.body_mass.value, cell.value, cell.sources, cell.verified_share,
+                       cell.value / per(ps) if per and per(ps) else None))
+    if len(points) < MIN_SPECIES:
+        return None, (f"allometric fill refused: {len(points)} {own_class} species have it "
+                      f"({', '.join(p[0] for p in points) or 'none'}); a fit needs {MIN_SPECIES} of the same class")
+    fit = fit_power_law([p[1] for p in points], [p[2] for p in points], [p[0] for p in points])
     value, low, high = fit.predict(body_mass)
-    sources = tuple(dict.fromkeys(s for p in chosen for s in p[4]))
-    method = (f"allometric across {fit.n} species ({scope}): {fit.a:.4g}·BW^{fit.b:.3f}, R² {fit.r2:.2f}, "
+    if high / low > MAX_INTERVAL_RATIO:
+        return None, (f"allometric fill refused: its 95 % prediction interval {low:.3g}–{high:.3g} spans more than "
+                      f"×{MAX_INTERVAL_RATIO:g} ({fit.n} {own_class} species)")
+    sources = tuple(dict.fromkeys(s for p in points for s in p[3]))
+    shares = [p[4] for p in points if p[4] is not None]
+    method = (f"allometric across {fit.n} {own_class} species: {fit.a:.4g}·BW^{fit.b:.3f}, R² {fit.r2:.2f}, "
               f"exponent 95 % CI {fit.b_ci[0]:.2f}–{fit.b_ci[1]:.2f}; interval is the 95 % prediction interval; "
               f"species: {', '.join(fit.labels)}")
-    return Cell(value, unit, "allometric", None, None, low, high, sources, method)
+    return Cell(value, unit, "allometric", None, None, low, high, sources, method,
+                verified_share=sum(shares) / len(shares) if shares else None), \
+        _plausibility([p[5] for p in points if p[5] is not None])
+
+
+def _plausibility(relative: list[float]):
+    """The peers' range of a fill's relative value (per kg body mass, or per L of tissue), widened."""
+    if not relative:
+        return None
+    return min(relative) / PLAUSIBLE_MARGIN, max(relative) * PLAUSIBLE_MARGIN
 
 
 def fill_cardiac_output(store, ps_species: str, stage: str, layout, body_mass: float) -> Cell | None:
-    return allometric_cell(store, ps_species, stage, layout, lambda ps: ps.cardiac_output, body_mass, "L/h")
+    cell, bounds = allometric_cell(store, ps_species, stage, layout, lambda ps: ps.cardiac_output, body_mass, "L/h",
+                                   per=lambda ps: ps.body_mass.value)
+    return _judged(cell, bounds, cell.value / body_mass if cell is not None else None, "per kg body mass")[0]
+
+
+def _judged(cell, bounds, relative, what: str) -> tuple[Cell | None, str]:
+    """Refuse a fill whose relative value falls outside the peers' widened range."""
+    if cell is None:
+        return None, bounds
+    if bounds is not None and relative is not None and not bounds[0] <= relative <= bounds[1]:
+        return None, (f"allometric fill refused: {relative:.3g} {what} lies outside {bounds[0]:.3g}–{bounds[1]:.3g}, "
+                      f"the range of the fitted species widened ×{PLAUSIBLE_MARGIN:g}")
+    return cell, ""
 
 
 def fill_allometric(store, ps) -> None:
-    """Replace each gap of GFR and of a layout compartment's volume or flow by its allometric prediction;
-    a fill rests on the same slots as the gap it replaces."""
+    """Replace each gap of GFR and of a layout compartment's volume or flow by its allometric prediction
+    when it is of use; a fill rests on the same slots as the gap it replaces, and a refused fill leaves
+    the gap with the reason."""
+    from dataclasses import replace
+
     if ps.body_mass.origin == "gap":
         return
     bw = ps.body_mass.value
-    targets = [(ps.physiology, "gfr", lambda other: other.physiology.get("gfr"))]
+    per_kg = lambda other: other.body_mass.value  # noqa: E731
+    targets = [(ps.physiology, "gfr", lambda other: other.physiology.get("gfr"), per_kg, "per kg body mass")]
     for comp in ps.layout.compartments:
-        targets.append((ps.volumes, comp, lambda other, c=comp: other.volumes.get(c)))
-        targets.append((ps.flows, comp, lambda other, c=comp: other.flows.get(c)))
-    for cells, key, pick in targets:
+        per_litre = lambda other, c=comp: other.volumes[c].value if other.volumes[c].origin != "gap" else None  # noqa: E731
+        targets.append((ps.volumes, comp, lambda other, c=comp: other.volumes.get(c), per_kg, "per kg body mass"))
+        targets.append((ps.flows, comp, lambda other, c=comp: other.flows.get(c), per_litre, "per L of tissue"))
+    for cells, key, pick, per, what in targets:
         gap = cells.get(key)
         if gap is None or gap.origin != "gap":
             continue
-        cell = allometric_cell(store, ps.species, ps.life_stage, ps.layout, pick, bw, gap.unit)
-        if cell is not None:
-            cells[key] = cell.resting_on(*gap.depends_on)
+        cell, bounds = allometric_cell(store, ps.species, ps.life_stage, ps.layout, pick, bw, gap.unit, per=per)
+        own = bw if per is per_kg else (ps.volumes[key].value if cells is ps.flows and
+                                        ps.volumes[key].origin != "gap" else None)
+        cell, why = _judged(cell, bounds, cell.value / own if cell is not None and own else None, what)
+        cells[key] = cell.resting_on(*gap.depends_on) if cell is not None else \
+            replace(gap, reason=f"{gap.reason}; {why}")

@@ -12,10 +12,12 @@ import pandas as pd
 from .. import CAUTION
 from ..schema.model import (LIVER, PARAMETERS, PORTAL_ORGANS, SHARES_OF_A_WHOLE, VESSELS_OF_LIVER, circulation,
                             has_own_flow, is_portal, is_pulmonary, parameter_of, slot_id)
+from .fallback import fall_back, other_stage_rows, point_to_other_stages, stage_order
 from .layouts import REST, Layout, load_layout
 from .pooling import Estimate
 from .resolve import SAME_BODY_WEIGHT, Resolved, Resolver
 
+STUDIED_RANGE_MARGIN = 1.5  # a given body mass this far beyond the studied subjects is flagged
 FLOW_TOLERANCE = 0.05  # named systemic flows may exceed cardiac output by 5 % before the set is flagged
 REST_DENSITY = 1.0  # kg/L, stated on the rest_of_body volume wherever it is used
 UNITS = {"SI": {p.id: (p.unit, 1.0) for p in PARAMETERS.values()},
@@ -418,6 +420,28 @@ def _source_sum_checks(resolver: Resolver, ps: ParameterSet) -> None:
                                         f"{total:.3f} (limit {limit:g})"))
 
 
+def _body_mass_from_other_stage(store, species, life_stage, sex, verified_only) -> Cell | None:
+    for stage in stage_order(life_stage, [r[0] for r in store.query(
+            "SELECT DISTINCT life_stage_id FROM curated_values WHERE species_id = ?", (species,))]):
+        cell, bw = _body_mass(Resolver(store, species, stage, sex, verified_only=verified_only), None)
+        if bw is not None:
+            return replace(cell, origin="fallback", method=f"from {stage} rows (stage fallback): {cell.method}")
+    return None
+
+
+def _studied_range_check(resolver: Resolver, ps: ParameterSet) -> None:
+    """A given body mass far outside the subjects behind the set's rows is an extrapolation: say so."""
+    masses = [r["subject_body_mass_kg"] for r in resolver.all_rows if r["subject_body_mass_kg"] is not None]
+    masses += [r["value_canonical"] for r in resolver.rows("body_mass", "whole_body")]
+    if not masses:
+        return
+    low, high, bw = min(masses), max(masses), ps.body_mass.value
+    inside = low / STUDIED_RANGE_MARGIN <= bw <= high * STUDIED_RANGE_MARGIN
+    ps.checks.append({"check": "body_mass_within_studied_range", "status": "pass" if inside else "warn",
+                      "detail": f"body mass {bw:.4g} kg against {low:.4g}–{high:.4g} kg of the subjects behind "
+                                f"this species' rows at this stage (margin ×{STUDIED_RANGE_MARGIN:g})"})
+
+
 def _body_mass_option(body_mass, body_weight):
     if body_weight is not None:
         import warnings
@@ -430,9 +454,12 @@ def _body_mass_option(body_mass, body_weight):
 
 
 def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | None = None, body_mass=None,
-                  layout="whole_body", fill: str = "none", units: str = "SI", body_weight=None) -> ParameterSet:
+                  layout="whole_body", fill: str = "none", units: str = "SI", stage_fallback: bool = False,
+                  verified_only: bool = False, body_weight=None) -> ParameterSet:
     """A layout's volumes and flows at one body mass (the species' typical one if not given), every gap
-    marked; ``fill="allometric"`` fills gaps across species, ``units`` is "SI" or "clinical"."""
+    marked. ``fill="allometric"`` fills gaps across species; ``stage_fallback`` fills them from the
+    species' rows at other life stages (named on each value); ``verified_only`` uses only rows read in
+    their source text; ``units`` is "SI" or "clinical"."""
     body_mass = _body_mass_option(body_mass, body_weight)
     if fill not in ("none", "allometric"):
         raise ParameterSetError(f"fill must be 'none' or 'allometric', not {fill!r}")
@@ -443,8 +470,16 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
     store.require("species", species, "species")
     store.require("life_stages", life_stage, "life stage")
     lay = layout if isinstance(layout, Layout) else load_layout(layout, set(store.ids("compartments")))
-    resolver = Resolver(store, species, life_stage, sex)
+    resolver = Resolver(store, species, life_stage, sex, verified_only=verified_only)
     bw_cell, bw = _body_mass(resolver, body_mass)
+    options = dict(sex=sex, layout=lay, fill=fill, units=units, verified_only=verified_only)
+    if bw is None and stage_fallback:
+        borrowed = _body_mass_from_other_stage(store, species, life_stage, sex, verified_only)
+        if borrowed is not None:
+            ps = parameter_set(store, species, life_stage=life_stage, body_mass=borrowed.value, stage_fallback=True,
+                               **options)
+            ps.body_mass = borrowed
+            return ps
     if bw is None:
         co = Cell.gap("L/h", "no body mass to scale cardiac output to")
     else:
@@ -468,12 +503,18 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
             physiology[name] = _scaled_cell(resolved, bw, declared.unit, bw).resting_on(name, "body_mass")
     ps = ParameterSet(species, life_stage, sex, lay, bw_cell, co, volumes, flows, liver_flow, physiology,
                       fill=fill, units=units)
+    if stage_fallback and bw is not None:
+        fall_back(store, ps, lambda stage: parameter_set(store, species, life_stage=stage, body_mass=bw, **options))
+    else:
+        point_to_other_stages(ps, other_stage_rows(store, species, life_stage, lay))
     if fill == "allometric":
         from .fill import fill_allometric
 
         fill_allometric(store, ps)
     _close_balances(ps)
     _source_sum_checks(resolver, ps)
+    if bw_cell.origin == "given":
+        _studied_range_check(resolver, ps)
     for comp, cell in ps.volumes.items():
         if "density 1 kg/L assumed" in cell.method:
             ps.checks.append({"check": f"density_assumed_{comp}", "status": "warn",

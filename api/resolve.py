@@ -72,10 +72,11 @@ def _gap(reason: str) -> Resolved:
 class Resolver:
     """All rows of one species, stage and sex, and the rules turning them into estimates."""
 
-    def __init__(self, store, species: str, life_stage: str = "adult", sex: str | None = None):
+    def __init__(self, store, species: str, life_stage: str = "adult", sex: str | None = None,
+                 verified_only: bool = False):
         self.store, self.species, self.life_stage, self.sex = store, species, life_stage, sex
         sql = (f"SELECT {ROW_COLUMNS} FROM curated_values WHERE species_id = ? AND life_stage_id = ? "
-               "AND value_canonical IS NOT NULL")
+               "AND value_canonical IS NOT NULL" + (" AND verified = 1" if verified_only else ""))
         params = [species, life_stage]
         if sex:
             sql += " AND sex IN (?, 'mixed', 'unknown')"

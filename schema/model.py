@@ -120,6 +120,10 @@ COMPOSITION = {
     "albumin_ratio": "albumin_ratio",
     "lipoprotein_ratio": "lipoprotein_ratio",
 }
+# Life stages to borrow from when a stage lacks a parameter, nearest first (common practice, no source).
+STAGE_FALLBACK = {"lactating": ("adult", "pregnant"), "laying": ("adult",), "pregnant": ("adult",),
+                  "senior": ("adult",), "adult": ("senior", "juvenile"), "juvenile": ("adult", "neonate"),
+                  "neonate": ("juvenile",)}
 WHOLE_BODY = ("body_mass", "cardiac_output", "gfr", "hematocrit")  # reported by every set, in this order
 COMPARTMENT = ("volume", "blood_flow")  # reported for every model compartment
 

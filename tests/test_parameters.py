@@ -198,7 +198,7 @@ def test_allometric_fill_labels_values_with_intervals(toy_store):
     kidney = ps.volumes["kidney"]
     assert kidney.origin == "allometric"
     assert kidney.low < kidney.value < kidney.high
-    assert "allometric across 7 species" in kidney.method
+    assert "allometric across 7 mammal species" in kidney.method
     # toy data follow volume = 0.006 · BW^0.9 / 1.05 exactly, so the fit recovers it
     assert kidney.value == pytest.approx(0.006 * 1.2**0.9 / 1.05, rel=0.02)
     assert ps.cardiac_output.origin == "allometric"
