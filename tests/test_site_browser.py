@@ -122,8 +122,9 @@ def test_a_person_follows_a_value_to_its_source(server, page, store):
     row_link.click()
     page.wait_for_url(f"**/bodyplan/curated_values/{value_id}")
     value_cell = page.locator("td.col-value").inner_text()
-    unit, words = page.locator("td.col-unit").inner_text().strip().split(" ", 1)  # "% (percent)"
-    assert words.startswith("(") and (unit in value_cell or "no value:" in value_cell)
+    # "% (percent)", "mL/min/(100 g) (milliliter per minute per 100 gram)": the unit itself may hold a space
+    unit, words = page.locator("td.col-unit").inner_text().strip().rsplit(" (", 1)
+    assert words.endswith(")") and (unit in value_cell or "no value:" in value_cell)
     assert "verified against the source text" in page.locator("td.col-verified").inner_text()
     source = page.locator("td.col-source_id a").inner_text().strip()
     summary = page.locator(".bodyplan-summary").inner_text()
