@@ -22,6 +22,7 @@ from .pooling import Estimate, pool
 ROW_COLUMNS = ("source_id, row_id, compartment_id, quantity_id, normalisation, value_canonical, sd_canonical, "
                "n, subject_body_mass_kg, sex, strain, age, verified, file, line")
 SAME_SUBJECTS = ("source_id", "sex", "strain", "age")  # rows of one source describing the same animals
+WITHIN_SPECIES_POINTS, WITHIN_SPECIES_SPAN = 3, 2.0  # subjects' masses needed to scale within a species
 SAME_BODY_WEIGHT = 0.02  # relative difference under which rows describe the requested body weight
 NAN = float("nan")
 
@@ -75,6 +76,7 @@ class Resolver:
     def __init__(self, store, species: str, life_stage: str = "adult", sex: str | None = None,
                  verified_only: bool = False):
         self.store, self.species, self.life_stage, self.sex = store, species, life_stage, sex
+        self.target_mass: float | None = None  # the set's body mass, for within-species scaling
         sql = (f"SELECT {ROW_COLUMNS} FROM curated_values WHERE species_id = ? AND life_stage_id = ? "
                "AND value_canonical IS NOT NULL" + (" AND verified = 1" if verified_only else ""))
         params = [species, life_stage]
@@ -184,7 +186,7 @@ class Resolver:
             return _gap(f"{compartment} masses lack the subjects' body mass")
         by_mass = [r for r in rows if not self._is_volume(r["_route"])]
         notes = [density_note] if by_mass else []
-        resolved = self._resolved(rows, notes)
+        resolved = self._over_body_mass(rows, notes) or self._resolved(rows, notes)
         if density_sources and notes:
             resolved.estimate = replace(resolved.estimate, sources=tuple(
                 dict.fromkeys(resolved.estimate.sources + tuple(density_sources))))
@@ -269,6 +271,24 @@ class Resolver:
                 result = resolved
         self._co_cache[body_mass] = result
         return result
+
+    def _over_body_mass(self, rows: list[dict], notes: list[str]) -> Resolved | None:
+        """Per-kg values of subjects spanning a range of body masses (a 25 kg grower and a 110 kg finisher
+        pig): the species' own power law of per-kg value on body mass, at the set's body mass."""
+        if self.target_mass is None:
+            return None
+        masses = [r["subject_body_mass_kg"] for r in rows]
+        if None in masses or len(set(masses)) < WITHIN_SPECIES_POINTS or max(masses) / min(masses) < WITHIN_SPECIES_SPAN:
+            return None
+        from .allometry import fit_power_law
+
+        fit = fit_power_law(masses, [r["_value"] for r in rows], [r["source_id"] for r in rows])
+        value, low, high = fit.predict(self.target_mass)
+        est = Estimate(value, None, None, low, high,
+                       f"within-species allometry of the per-kg value over {len(rows)} rows of "
+                       f"{min(masses):.3g}–{max(masses):.3g} kg subjects: {fit.a:.3g}·BW^{fit.b:.3f} "
+                       "(95 % prediction interval)", len(rows), tuple(dict.fromkeys(r["source_id"] for r in rows)))
+        return Resolved(est, rows, notes, verified_share=sum(bool(r["verified"]) for r in rows) / len(rows))
 
     def _within_species_fit(self, absolute: list[dict], body_mass: float) -> Resolved:
         from .allometry import fit_power_law
