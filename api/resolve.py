@@ -16,12 +16,13 @@ from collections import defaultdict
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 
-from ..schema.model import FLUID_VOLUME, PARAMETERS, body_plan, routes, summable_parts
+from ..schema.model import FLUID_VOLUME, PARAMETERS, VESSEL_ORGAN, body_plan, routes, summable_parts
 from .pooling import Estimate, pool
 
 ROW_COLUMNS = ("source_id, row_id, compartment_id, quantity_id, normalisation, value_canonical, sd_canonical, "
                "n, subject_body_mass_kg, sex, strain, age, verified, file, line")
 SAME_SUBJECTS = ("source_id", "sex", "strain", "age")  # rows of one source describing the same animals
+PER_TISSUE = "blood_flow per kg tissue"  # the route of a flow given per mass of its tissue
 WITHIN_SPECIES_POINTS, WITHIN_SPECIES_SPAN = 3, 2.0  # subjects' masses needed to scale within a species
 SAME_BODY_WEIGHT = 0.02  # relative difference under which rows describe the requested body weight
 NAN = float("nan")
@@ -306,10 +307,11 @@ class Resolver:
     def flow_fraction(self, compartment: str) -> Resolved:
         """Blood flow of one stored compartment as a fraction of cardiac output. An absolute flow is
         divided by the cardiac output of the same source and subjects when the source gives one, else
-        by the species' cardiac output at the subjects' body mass (said on the row)."""
-        preference = list(routes("blood_flow"))
+        by the species' cardiac output at the subjects' body mass; a flow per kg of tissue is first
+        multiplied by the species' mass of that tissue (each said on the row)."""
+        preference = [*routes("blood_flow"), PER_TISSUE]
         candidates = []
-        for quantity in preference:
+        for quantity in routes("blood_flow"):
             for r in self.rows(quantity, compartment):
                 if self._share_of.get(quantity) == "cardiac_output":
                     candidates.append(self._routed(r, quantity, 1.0))
@@ -317,6 +319,10 @@ class Resolver:
                     co, how = self._cardiac_output_for(r)
                     if co is not None:
                         candidates.append(dict(self._routed(r, quantity, 1.0 / co), _over=how))
+                elif r["normalisation"] == "tissue_mass":
+                    factor, how = self._per_tissue_factor(r, compartment)
+                    if factor is not None:
+                        candidates.append(dict(self._routed(r, PER_TISSUE, factor), _over=how))
         if not candidates:
             if any(r["normalisation"] == "none" for q in preference if self._share_of.get(q) is None
                    for r in self.rows(q, compartment)):
@@ -326,6 +332,21 @@ class Resolver:
         rows = _one_route_per_source(candidates, preference)
         notes = sorted({r["_over"] for r in rows if "_over" in r})
         return self._resolved(rows, notes)
+
+    def _per_tissue_factor(self, row: dict, compartment: str) -> tuple[float | None, str]:
+        """What turns a flow per kg of tissue into a share of cardiac output: the species' tissue mass per
+        kg body mass (a vessel's tissue is its organ) over its cardiac output per kg at the subjects' mass."""
+        organ = VESSEL_ORGAN.get(compartment, compartment)
+        tissue = self.volume_per_kg(organ)
+        mass = self.subject_mass(row)
+        if not tissue.ok or math.isnan(mass):
+            return None, ""
+        co = self.cardiac_output(mass)
+        if not co.ok:
+            return None, ""
+        kg_tissue = tissue.estimate.value * self.density(organ)[0]  # per kg body mass
+        return kg_tissue * mass / co.estimate.value, (
+            f"flows per kg of tissue × the species' {organ} mass over its cardiac output at the subjects' body mass")
 
     def _cardiac_output_for(self, row: dict) -> tuple[float | None, str]:
         """The cardiac output (L/h) an absolute flow row is a share of."""
