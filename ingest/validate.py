@@ -75,7 +75,8 @@ def check_foreign(frame: pd.DataFrame, column: str, known: set, vocab: str, find
                   skip: set) -> None:
     col = frame[column]
     _report(frame, (col != "") & ~col.isin(known), column,
-            lambda v: f"unknown {column} {v!r}; use an id from vocab/{vocab}.csv or add it there", findings, skip)
+            lambda v: f"unknown {column} {v!r}; use an id from vocab/{vocab}.csv or add it there", findings, skip,
+            code=f"{column.replace('_', '-')}-unknown")
 
 
 def check_vocab(tree: CuratedTree, findings: Findings) -> None:
@@ -109,9 +110,14 @@ def check_vocab(tree: CuratedTree, findings: Findings) -> None:
                     findings.error(row["_file"], row["_line"], "quantities", f"unknown quantity {q!r}; use ids "
                                    "from vocab/quantities.csv, or * for any quantity", code="method-quantity-unknown")
             for where in row["not_accepted_in"].split():
-                if where not in scopes:
-                    findings.error(row["_file"], row["_line"], "not_accepted_in", f"{where!r} is neither a taxon "
+                scope, _, quantity = where.partition(":")
+                if scope not in scopes:
+                    findings.error(row["_file"], row["_line"], "not_accepted_in", f"{scope!r} is neither a taxon "
                                    f"class ({', '.join(descriptors.TAXON_CLASSES)}) nor a species id",
+                                   code="method-scope-unknown")
+                if quantity and quantity not in row["quantities"].split() and "*" not in row["quantities"].split():
+                    findings.error(row["_file"], row["_line"], "not_accepted_in", f"{where!r} names quantity "
+                                   f"{quantity!r}, which this method does not measure; use one of its quantities",
                                    code="method-scope-unknown")
     if "quantities" in tree.vocab:
         for row in tree.vocab["quantities"].to_dict("records"):
@@ -378,14 +384,17 @@ def attach_conversion(frame: pd.DataFrame, tree: CuratedTree, findings: Findings
     )
 
 
-def _measure(frame, column, dimension, unit, findings, skip, what) -> np.ndarray:
+def _measure(frame, column, dimension, unit, findings, skip, what, code="") -> np.ndarray:
     """Parse 'number unit' cells of one column per distinct text, into ``unit``."""
     out = np.full(len(frame), np.nan)
     for text, index in frame.groupby(column, sort=False).indices.items():
         if not text.strip():
             continue
         try:
-            q = parse_unit(text)
+            try:
+                q = parse_unit(text)
+            except UnitError:
+                raise ValueError(text) from None  # pint's words are about units; this cell is an amount
             if q.dimensionality != parse_unit(unit).dimensionality:
                 raise UnitError(f"{text!r} is not {what}; write e.g. {dimension}")
             amount = float(q.to(unit).magnitude)
@@ -394,15 +403,15 @@ def _measure(frame, column, dimension, unit, findings, skip, what) -> np.ndarray
             out[index] = amount
         except (UnitError, Exception) as exc:  # pint's own errors included
             message = str(exc) if isinstance(exc, UnitError) else f"cannot read {text!r}; write e.g. {dimension}"
-            _report(frame.iloc[index], np.ones(len(index)), column, message, findings, skip)
+            _report(frame.iloc[index], np.ones(len(index)), column, message, findings, skip, code=code)
     return out
 
 
 def attach_measures(frame: pd.DataFrame, findings: Findings, skip: set) -> pd.DataFrame:
-    body_kg = _measure(frame, "body_mass", "'0.25 kg'", "kg", findings, skip, "a mass")
+    body_kg = _measure(frame, "body_mass", "'0.25 kg'", "kg", findings, skip, "a mass", "body-mass-unreadable")
     _report(frame, body_kg <= 0, "body_mass", lambda v: f"{v!r} is not positive; give the subjects' mass",
             findings, skip)
-    age_days = _measure(frame, "age", "'10 year'", "day", findings, skip, "an age")
+    age_days = _measure(frame, "age", "'10 year'", "day", findings, skip, "an age", "age-unreadable")
     _report(frame, age_days < 0, "age", lambda v: f"{v!r} is negative; give the age since birth or hatching",
             findings, skip, code="age-negative")
     # sd in canonical units: from sd, se·√n, cv·value, or a ci95 of a mean (width / 3.92 · √n)

@@ -17,7 +17,9 @@ YES_NO = ["yes", "no"]
 QUANTITY_KINDS = ["absolute", "fraction", "ratio"]
 TAXON_CLASSES = ["mammal", "bird", "fish", "reptile", "amphibian"]
 COMPARTMENT_KINDS = ["whole_body", "organ", "tissue", "fluid", "vessel", "cells", "product", "other"]
-GROUP_ID = r"[a-z0-9][a-z0-9_]*"
+GROUP_ID = r"[a-z0-9][a-z0-9_.\-]*"  # like a row id: 'all', 'male', 'd3.5_f'
+SCOPE = r"[a-z_]+(:[a-z_]+)?"  # where a method is refused: a taxon class or species, optionally ':quantity'
+
 # Which body mass a fraction or per-kg value is taken of, and the quantity holding the source's own
 # ratio of that mass to live body mass (needed to convert the row to live body mass).
 DENOMINATORS = {"live_body": None, "empty_body": "empty_body_mass_fraction", "carcass": "carcass_mass_fraction"}
@@ -165,8 +167,9 @@ METHODS = {
         field("quantities", description="Quantity ids the method measures (space separated).", required=True),
         field("accepted", description="yes if pooling accepts the method by default, else no.", required=True,
               enum=YES_NO),
-        field("not_accepted_in", description="Taxon classes or species ids where the method is not accepted "
-              "although accepted is yes (space separated)."),
+        field("not_accepted_in", description="Where the method is not accepted although accepted is yes: taxon "
+              "classes or species ids, each optionally narrowed to one quantity as 'fish:blood_volume' (space "
+              "separated)."),
         field("reason", description="Why: a published source (authors, year) or 'common practice, no source'.",
               required=True),
         field("description", description="What the method measures and how."),
@@ -235,8 +238,19 @@ GROUPS = {
     ],
 }
 
-# Curated tables at the tree's root (optional files): relations rather than vocabularies.
-ROOT_TABLES = {"groups": GROUPS}
+BASELINE = {
+    "description": "Reviewed plausibility warnings that stand: check reports them as accepted, not as new.",
+    "primaryKey": ["file", "row_id", "code"],
+    "fields": [
+        field("file", description="The values file, relative to the tree, e.g. values/brown1997.csv.", required=True),
+        field("row_id", description="The row's id in that file.", required=True),
+        field("code", description="The warning's code, e.g. overlapping-groups.", required=True),
+        field("note", description="Why the warning stands (what the reviewer read in the source)."),
+    ],
+}
+
+# Curated tables at the tree's root (optional files): relations and review records, not vocabularies.
+ROOT_TABLES = {"groups": GROUPS, "check_baseline": BASELINE}
 
 
 def defaults(descriptor: dict) -> dict[str, str]:
