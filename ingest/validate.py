@@ -47,9 +47,10 @@ def check_shape(frame: pd.DataFrame, descriptor: dict, findings: Findings, skip:
             allowed = rules["enum"]
             _report(frame, ~empty & ~col.isin(allowed), name,
                     lambda v, a=allowed: f"{v!r} is not one of: {', '.join(a)}", findings, skip)
-        if "pattern" in rules:
-            ok = col.str.fullmatch(rules["pattern"])
-            _report(frame, ~empty & ~ok.astype(bool), name,
+        if "pattern" in rules:  # matched once per distinct cell: ids and groups repeat over many rows
+            pattern = re.compile(rules["pattern"])
+            wrong = [v for v in pd.unique(col.to_numpy(dtype=object)) if v and not pattern.fullmatch(v)]
+            _report(frame, col.isin(wrong) if wrong else np.zeros(len(frame), dtype=bool), name,
                     lambda v, s=spec: f"{v!r} is not well formed; {s['description'][0].lower()}"
                                       f"{s['description'][1:]}", findings, skip)
         if spec["type"] in ("number", "integer"):
@@ -321,9 +322,11 @@ def check_semantics(frame: pd.DataFrame, tree: CuratedTree, findings: Findings, 
     classes = tree.vocab.get("classes")
     if classes is not None:
         known = set(zip(classes["species"], classes["id"]))
-        pairs = pd.Series(list(zip(frame["species"], frame["class"])), index=frame.index, dtype=object)
-        has_class = frame["class"] != ""
-        _report(frame, has_class & ~pairs.isin(known), "class",
+        has_class = (frame["class"] != "").to_numpy()
+        unknown = np.zeros(len(frame), dtype=bool)
+        unknown[has_class] = [pair not in known for pair in zip(frame["species"].to_numpy()[has_class],
+                                                                frame["class"].to_numpy()[has_class])]
+        _report(frame, unknown, "class",
                 lambda v: f"unknown class {v!r} for this species; use a class of the row's species from "
                           "vocab/classes.csv or add it there", findings, skip, code="class-unknown")
     methods, quantities = tree.vocab.get("methods"), tree.vocab.get("quantities")
