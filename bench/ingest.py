@@ -98,12 +98,15 @@ def synthetic_tree(root: Path, n_values: int, n_files: int, seed: int = 1) -> No
                 elif kind in ("ci95", "range"):
                     low, high = f"{v * 0.9:.4g}", f"{v * 1.1:.4g}"
                 n = "" if kind == "none" else str(rng.integers(3, 40))
-                out.writerow([
-                    f"r{i:06d}", file_species[i % 3], STAGES[i % 2], AGES[i % 3], ("male", "female")[i % 2],
-                    STRAINS[(i // 2) % 3], comps[i % len(comps)], quantity, "" if missing[i] else repr(v), unit,
-                    kind, spread, low, high, n, BODY_MASSES[i % len(BODY_MASSES)], "measured", f"Table {i % 9 + 1}",
-                    "no", "not reported" if missing[i] else "", "invented for the benchmark",
-                ])
+                cells = dict(zip(
+                    ["id", "species", "life_stage", "age", "sex", "strain", "compartment", "quantity", "value",
+                     "unit", "uncertainty", "spread", "low", "high", "n", "body_mass", "basis", "locator",
+                     "verified", "missing_reason", "comment"],
+                    [f"r{i:06d}", file_species[i % 3], STAGES[i % 2], AGES[i % 3], ("male", "female")[i % 2],
+                     STRAINS[(i // 2) % 3], comps[i % len(comps)], quantity, "" if missing[i] else repr(v), unit,
+                     kind, spread, low, high, n, BODY_MASSES[i % len(BODY_MASSES)], "measured", f"Table {i % 9 + 1}",
+                     "no", "not reported" if missing[i] else "", "invented for the benchmark"]))
+                out.writerow([cells.get(c, "") for c in COLUMNS])  # other columns empty: their defaults
     (root / "sources.bib").write_text("".join(bib), encoding="utf-8")
 
 

@@ -18,8 +18,8 @@ from .plausibility import check_plausibility
 from .read import CuratedTree, read_tree
 from .validate import validate
 
-HASHED_TABLES = ["species", "life_stages", "compartments", "quantities", "sources", "curated_values",
-                 "input_files"]
+HASHED_TABLES = ["species", "life_stages", "compartments", "quantities", "methods", "parts", "classes",
+                 "body_surface", "sources", "groups", "curated_values", "input_files"]
 
 
 @dataclass
@@ -74,8 +74,8 @@ def _none(x):
     return x.item() if isinstance(x, np.generic) else x
 
 
-def _vocab_rows(frame: pd.DataFrame, columns: list[str]) -> list[tuple]:
-    frame = frame.sort_values("id")
+def _vocab_rows(frame: pd.DataFrame, columns: list[str], keys: list[str]) -> list[tuple]:
+    frame = frame.sort_values(keys)
     return [tuple(_none(v.strip() if isinstance(v, str) else v) for v in row)
             for row in frame[columns].itertuples(index=False)]
 
@@ -91,7 +91,7 @@ def _value_rows(frame: pd.DataFrame) -> list[tuple]:
     frame = frame.sort_values(["_source", "_line"])
     strip = {c: _text(frame[c]) for c in
              ("id", "species", "life_stage", "age", "sex", "strain", "compartment", "quantity", "unit",
-              "uncertainty", "basis", "locator", "missing_reason", "comment")}
+              "uncertainty", "basis", "locator", "missing_reason", "comment", "class", "method")}
 
     def num(col):  # NaN to None, -0.0 to 0.0: the values exactly as SQLite gives them back
         arr = frame[col].to_numpy(dtype=float) + 0.0
@@ -110,6 +110,9 @@ def _value_rows(frame: pd.DataFrame) -> list[tuple]:
         num("_body_mass_kg"), strip["basis"], strip["locator"],
         (frame["verified"] == "yes").astype(int).tolist(), strip["missing_reason"],
         strip["comment"], frame["_file"].tolist(), frame["_line"].astype(int).tolist(),
+        strip["class"], frame["_group"].tolist(), frame["_part"].tolist(), strip["method"],
+        frame["_statistic"].tolist(), (frame["_uncertainty_assumed"] == "yes").astype(int).tolist(),
+        frame["_n_counts"].tolist(), frame["_denominator"].tolist(),
     ]
     return list(zip(range(1, len(frame) + 1), *columns))  # the store's id first, as SELECT * gives it back
 
@@ -118,7 +121,8 @@ VALUE_COLUMNS = ["id", "source_id", "row_id", "species_id", "life_stage_id", "ag
                  "compartment_id", "quantity_id", "quantity_kind", "value", "unit", "value_canonical",
                  "unit_canonical", "normalisation", "uncertainty", "spread", "low", "high", "sd_canonical",
                  "low_canonical", "high_canonical", "n", "subject_body_mass_kg", "basis", "locator", "verified",
-                 "missing_reason", "comment", "file", "line"]
+                 "missing_reason", "comment", "file", "line", "class_id", "group_id", "part_id", "method_id",
+                 "statistic", "uncertainty_assumed", "n_counts", "denominator"]
 
 
 def _digest_rows(digest, rows: list[tuple]) -> None:
@@ -185,7 +189,7 @@ def write_store(tree: CuratedTree, frame: pd.DataFrame, path: Path) -> tuple[str
         conn.execute("BEGIN")
         for name, descriptor in descriptors.VOCABULARIES.items():
             columns = descriptors.names(descriptor)
-            rows = _vocab_rows(tree.vocab[name], columns)
+            rows = _vocab_rows(tree.vocab[name], columns, descriptor["primaryKey"])
             _insert(conn, name, columns, rows)
         source_rows = []
         for src in sorted(tree.sources, key=lambda s: s["key"]):
@@ -194,9 +198,14 @@ def write_store(tree: CuratedTree, frame: pd.DataFrame, path: Path) -> tuple[str
             source_rows.append((src["key"], src["type"], f.get("author"), _plain(f.get("title", "")) or None,
                                 _plain(f.get("journal") or f.get("booktitle") or f.get("publisher") or "") or None,
                                 int(year) if year.isdigit() else None, f.get("volume"), f.get("pages"),
-                                f.get("doi"), format_citation(f), src["bibtex"], f.get("note")))
+                                f.get("doi"), format_citation(f), src["bibtex"], f.get("note"),
+                                f.get("derived_from", "").strip() or None))
         _insert(conn, "sources", ["id", "entry_type", "author", "title", "container", "year", "volume", "pages",
-                                  "doi", "citation", "bibtex", "note"], source_rows)
+                                  "doi", "citation", "bibtex", "note", "derived_from"], source_rows)
+        if tree.groups is not None and len(tree.groups):
+            group_rows = sorted(tuple(_none(v) for v in row) for row in
+                                tree.groups[["source", "group", "contains", "label", "note"]].itertuples(index=False))
+            _insert(conn, "groups", ["source_id", "group_id", "contains", "label", "note"], group_rows)
         # indexes are built once after the bulk insert rather than kept up to date row by row
         indexes = [sql for (sql,) in conn.execute("SELECT sql FROM sqlite_master WHERE type = 'index' AND "
                                                   "tbl_name = 'curated_values' AND sql IS NOT NULL ORDER BY name")]

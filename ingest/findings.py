@@ -12,6 +12,7 @@ class Finding:
     column: str
     message: str
     severity: str = "error"  # "error" blocks a build; "warning" does not
+    code: str = ""  # a stable kebab-case id of the kind of finding, e.g. "method-not-accepted"
 
     def __str__(self) -> str:
         tag = "" if self.severity == "error" else "warning: "
@@ -22,11 +23,11 @@ class Finding:
 class Findings:
     items: list[Finding] = field(default_factory=list)
 
-    def error(self, file: str, line: int, column: str, message: str) -> None:
-        self.items.append(Finding(file, int(line), column, message, "error"))
+    def error(self, file: str, line: int, column: str, message: str, code: str = "") -> None:
+        self.items.append(Finding(file, int(line), column, message, "error", code))
 
-    def warn(self, file: str, line: int, column: str, message: str) -> None:
-        self.items.append(Finding(file, int(line), column, message, "warning"))
+    def warn(self, file: str, line: int, column: str, message: str, code: str = "") -> None:
+        self.items.append(Finding(file, int(line), column, message, "warning", code))
 
     def extend(self, other: "Findings") -> None:
         self.items.extend(other.items)

@@ -166,6 +166,9 @@ def curated_files(root: Path) -> list[tuple[Path, str, dict | None]]:
             files.append((path, f"{VOCAB_DIR}/{name}.csv", descriptor))
     for path in sorted((root / VALUES_DIR).glob("*.csv")):
         files.append((path, f"{VALUES_DIR}/{path.name}", descriptors.VALUES))
+    for name, descriptor in descriptors.ROOT_TABLES.items():
+        if (root / f"{name}.csv").exists():
+            files.append((root / f"{name}.csv", f"{name}.csv", descriptor))
     for path in [root / BIB_FILE, *sorted((root / "bib_parts").glob("*.bib"))]:
         if path.exists():
             files.append((path, str(path.relative_to(root)), None))

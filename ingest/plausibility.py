@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import re
+
 import numpy as np
 import pandas as pd
 
@@ -9,9 +11,9 @@ from ..schema.model import PORTAL_ORGANS
 from ..units import UnitError, conversion
 from .findings import Findings
 from .read import CuratedTree
-from .validate import plausible_ranges
+from .validate import plausible_ranges, subgroups
 
-GROUP = ["_source", "species", "life_stage", "sex", "strain", "age"]
+GROUP = ["_source", "_group", "species", "life_stage", "sex", "class", "strain", "age", "_denominator"]
 
 
 def check_ranges(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> None:
@@ -30,10 +32,11 @@ def check_ranges(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> 
             for row in out.to_dict("records"):
                 findings.warn(row["_file"], row["_line"], "value",
                               f"{row['value']} {row['unit']} lies outside the plausible range {low:g}..{high:g} {unit} "
-                              f"for {quantity}; check the unit and the number against the source")
+                              f"for {quantity}; check the unit and the number against the source",
+                              code="outside-plausible-range")
 
 
-def _sum_warnings(frame, quantity, compartments, findings, total_if_odd, message) -> None:
+def _sum_warnings(frame, quantity, compartments, findings, total_if_odd, message, code) -> None:
     """Per source, animal group and quantity: sum the top-level compartments' fractions with numpy;
     ``total_if_odd(values, compartments)`` gives the total when it deserves a warning, else None."""
     rows = frame[(frame["quantity"] == quantity) & frame["_value_canonical"].notna()
@@ -47,7 +50,7 @@ def _sum_warnings(frame, quantity, compartments, findings, total_if_odd, message
         total = total_if_odd(value[idx], place[idx])
         if total is not None:
             first = rows.iloc[idx[np.argmin(line[idx])]]
-            findings.warn(first["_file"], first["_line"], "value", message(first, total))
+            findings.warn(first["_file"], first["_line"], "value", message(first, total), code=code)
 
 
 def check_sums(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> None:
@@ -68,11 +71,11 @@ def check_sums(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> No
     _sum_warnings(frame, "tissue_mass_fraction", top_level, findings, masses,
                   lambda first, total: f"organ mass fractions of {first['species']} ({first['life_stage']}) in this "
                                        f"source sum to {total:.3f}, above 1; check for a part counted with its whole "
-                                       "or a % read as 1")
+                                       "or a % read as 1", "mass-fractions-above-1")
     _sum_warnings(frame, "blood_flow_fraction", top_level, findings, flows,
                   lambda first, total: f"blood flow fractions of {first['species']} ({first['life_stage']}) in this "
                                        f"source sum to {total:.3f} of cardiac output (portal organs counted within "
-                                       "liver); a full set should be near 1")
+                                       "liver); a full set should be near 1", "flow-fractions-off-1")
 
 
 OUTLIER_FACTOR = 3.0  # common practice, no source: a 3-fold gap between studies of one parameter is worth a look
@@ -166,7 +169,7 @@ def check_outliers(frame: pd.DataFrame, findings: Findings, factor: float = OUTL
                               f"{row['value']} {row['unit']} ({_fmt(row['_value_canonical'])} {row['_unit_canonical']}) "
                               f"is {how} {what} for {row['species']} {row['life_stage']} {row['compartment']} "
                               f"{row['quantity']}; check the number, its unit, the compartment, life stage and strain "
-                              "against the source")
+                              "against the source", code="outlier-between-sources")
 
 
 def check_unit_typos(frame: pd.DataFrame, findings: Findings) -> None:
@@ -215,7 +218,201 @@ def check_unit_typos(frame: pd.DataFrame, findings: Findings) -> None:
                               f"about {how} the median {_fmt(reference)} {row['_unit_canonical']} of "
                               f"{int(others.sum())} other {row['quantity']} row(s) of {row['species']} in this file, "
                               f"which use {other_unit!r}; is {unit!r} a typo for {other_unit!r}? check the unit in "
-                              "the source")
+                              "the source", code="unit-typo")
+
+
+# --- what a number means: animals, parts, methods ---------------------------------------------------
+
+ANIMALS = ["_source", "_group", "species", "life_stage", "sex", "class", "strain", "age"]
+# Quantities whose parts add up to their whole (a per-kg-tissue flow or a concentration does not).
+ADDITIVE = {"tissue_mass", "tissue_volume", "tissue_mass_fraction", "blood_flow", "blood_flow_fraction",
+            "lumen_content_volume"}
+PARTS_TOLERANCE = 0.02  # common practice, no source: printed values rounded to 2-3 digits may sum 2 % high
+
+
+def _where(row) -> str:
+    return f"{row['_file']}:{row['_line']}"
+
+
+def check_organ_above_body(frame: pd.DataFrame, findings: Findings) -> None:
+    """An organ's mass above the mass of the animals it came from (the row's body_mass, or the source's
+    body_mass row of the same group)."""
+    organs = frame[(frame["quantity"] == "tissue_mass") & (frame["compartment"] != "whole_body")
+                   & (frame["_normalisation"] == "none") & frame["_value_canonical"].notna()]
+    if organs.empty:
+        return
+    bodies = frame[(frame["quantity"] == "body_mass") & (frame["_normalisation"] == "none")
+                   & frame["_value_canonical"].notna()]
+    body_of = bodies.groupby(ANIMALS, dropna=False)["_value_canonical"].median().to_dict()
+    for row in organs.to_dict("records"):
+        body = row["_body_mass_kg"]
+        if not np.isfinite(body):
+            body = body_of.get(tuple(row[c] for c in ANIMALS), np.nan)
+        if np.isfinite(body) and row["_value_canonical"] > body:
+            findings.warn(row["_file"], row["_line"], "value",
+                          f"{row['value']} {row['unit']} of {row['compartment']} is more than the body mass "
+                          f"{_fmt(body)} kg of its animals; check the unit, the number and the body mass",
+                          code="organ-above-body-mass")
+
+
+def check_parts_above_whole(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> None:
+    """Within one group of animals and one quantity: sub-compartments (compartments part_of) and parts
+    (parts part_of) must not sum above their whole."""
+    comp_parent = dict(zip(tree.vocab["compartments"]["id"], tree.vocab["compartments"]["part_of"]))
+    parts = tree.vocab.get("parts")
+    part_parent = dict(zip(parts["id"], parts["part_of"])) if parts is not None else {}
+    rows = frame[frame["quantity"].isin(ADDITIVE) & frame["_normalisation"].isin(["none", "body_mass"])
+                 & frame["_value_canonical"].notna()]
+    keys = [*ANIMALS, "quantity", "_unit_canonical", "_denominator"]
+    for _key, group in rows.groupby(keys, dropna=False, sort=True):
+        if len(group) < 2:
+            continue
+        value = group.groupby(["compartment", "_part"])["_value_canonical"].median().to_dict()
+        first = {}
+        for r in group.sort_values("_line").to_dict("records"):
+            first.setdefault((r["compartment"], r["_part"]), r)
+        wholes = {}
+        for (comp, part), v in value.items():  # group the parts under each whole present
+            if comp_parent.get(comp) and (comp_parent[comp], part) in value:
+                wholes.setdefault((comp_parent[comp], part), []).append((comp, part))
+            if part_parent.get(part) and (comp, part_parent[part]) in value:
+                wholes.setdefault((comp, part_parent[part]), []).append((comp, part))
+        for whole, members in sorted(wholes.items()):
+            total = sum(value[m] for m in members)
+            if total > value[whole] * (1 + PARTS_TOLERANCE):
+                row = first[whole]
+                names = " + ".join(f"{c} ({p})" if p != "tissue" else c for c, p in members)
+                findings.warn(row["_file"], row["_line"], "value",
+                              f"the parts {names} of these animals sum to {_fmt(total)} {row['_unit_canonical']}, "
+                              f"above the whole {whole[0]} ({whole[1]}) {_fmt(value[whole])} "
+                              f"{row['_unit_canonical']}; check the compartments and parts of these rows",
+                              code="parts-above-whole")
+
+
+def _refused(tree: CuratedTree) -> dict[str, tuple[str, set[str]]]:
+    """method → (reason, the taxon classes and species ids where pooling refuses it; '*' for everywhere)."""
+    methods = tree.vocab.get("methods")
+    if methods is None:
+        return {}
+    return {m: (reason, {"*"} if accepted == "no" else set(where.split()))
+            for m, accepted, where, reason in zip(methods["id"], methods["accepted"], methods["not_accepted_in"],
+                                                  methods["reason"])}
+
+
+def check_methods_accepted(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> None:
+    refused = _refused(tree)
+    species = tree.vocab["species"].set_index("id")["taxon_class"].to_dict() if "species" in tree.vocab else {}
+    rows = frame[frame["method"].isin([m for m, (_r, where) in refused.items() if where])]
+    for row in rows.to_dict("records"):
+        reason, where = refused[row["method"]]
+        taxa = (row["species"], species.get(row["species"]))
+        if "*" in where or any(t in where or f"{t}:{row['quantity']}" in where for t in taxa):
+            findings.warn(row["_file"], row["_line"], "method",
+                          f"{row['method']} is not accepted for {row['quantity']} of {row['species']} ({reason}); "
+                          "pooling leaves this row out; keep it when the source prints it",
+                          code="method-not-accepted")
+
+
+SAME_MEASUREMENT = [*ANIMALS, "compartment", "quantity", "_part", "_denominator", "method", "_statistic",
+                    "_normalisation"]
+
+
+def check_duplicate_groups(frame: pd.DataFrame, findings: Findings) -> None:
+    """The same animals, quantity, compartment, part and method given twice in one form: pooling would count
+    them twice. (One measurement printed absolute and per kg is two forms of one number, not a duplicate.)"""
+    have = frame[frame["_value_canonical"].notna()]
+    dup = have.duplicated(SAME_MEASUREMENT, keep=False)
+    for _key, group in have[dup].groupby(SAME_MEASUREMENT, dropna=False, sort=True):
+        group = group.sort_values("_line")
+        first = group.iloc[0]
+        for row in group.iloc[1:].to_dict("records"):
+            findings.warn(row["_file"], row["_line"], "group",
+                          f"group {row['_group']!r} already has {row['quantity']} of {row['compartment']} by the same "
+                          f"method at line {first['_line']} (row {first['id']}); give each set of animals its own "
+                          "group (e.g. one per diet or age), or keep one of the rows",
+                          code="duplicate-group")
+
+
+OVERLAP = ["_source", "species", "life_stage", "compartment", "quantity", "_part", "_denominator"]
+
+
+def check_overlapping_groups(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> None:
+    """A group and one of its subgroups (groups.csv) both give a quantity: the same animals twice."""
+    if tree.groups is None or tree.groups.empty:
+        return
+    inside = subgroups(tree.groups)
+    have = frame[frame["_value_canonical"].notna()]
+    for _key, group in have.groupby(OVERLAP, sort=True):
+        source = group["_source"].iloc[0]
+        present = set(group["_group"])
+        for whole in sorted(present):
+            parts = sorted(inside.get((source, whole), set()) & present)
+            if not parts:
+                continue
+            whole_row = group[group["_group"] == whole].sort_values("_line").iloc[0]
+            for row in group[group["_group"].isin(parts)].sort_values("_line").to_dict("records"):
+                findings.warn(row["_file"], row["_line"], "group",
+                              f"group {row['_group']!r} lies within group {whole!r} (groups.csv), which also gives "
+                              f"{row['quantity']} of {row['compartment']} at line {whole_row['_line']}; pooling uses "
+                              "one of them; accept this warning in check_baseline.csv once reviewed",
+                              code="overlapping-groups")
+
+
+_NUMBER = r"([0-9]+(?:\.[0-9]+)?)"
+RANGE_TEXT = re.compile(r"(?:\bfrom\s+" + _NUMBER + r"\s*(?:[^\W\d_]+\s*)?to\s+" + _NUMBER + r")|(?:" + _NUMBER
+                        + r"\s*(?:–|—|\bto\b)\s*" + _NUMBER + r")", re.I)
+
+
+def ranges_in_text(text: str) -> list[tuple[float, float]]:
+    """'from 3.2 to 4.1', '3.2 to 4.1', '3.2–4.1' (en dash) in free text → [(3.2, 4.1)]."""
+    found = []
+    for m in RANGE_TEXT.finditer(text or ""):
+        a, b = (m.group(1), m.group(2)) if m.group(1) else (m.group(3), m.group(4))
+        found.append((float(a), float(b)))
+    return found
+
+
+def check_range_ends(frame: pd.DataFrame, findings: Findings) -> None:
+    """A range end stored as the value: value equal to low or high of a range, or to an end of a range
+    the comment quotes."""
+    have = frame[frame["_value"].notna()]
+    ranged = have[(have["uncertainty"] == "range") & (have["_low"] < have["_high"])
+                  & ((have["_value"] == have["_low"]) | (have["_value"] == have["_high"]))]
+    for row in ranged.to_dict("records"):
+        end = "low" if row["_value"] == row["_low"] else "high"
+        findings.warn(row["_file"], row["_line"], "value",
+                      f"{row['value']} equals the range's {end} end; a range end is not a central value: give the "
+                      "source's mean or median, or the midpoint with statistic reference_midpoint",
+                      code="range-end-as-value")
+    quoted = have[~have.index.isin(ranged.index) & have["comment"].str.contains(r"[0-9]", regex=True)]
+    for row in quoted.to_dict("records"):
+        for low, high in ranges_in_text(row["comment"]):
+            if low != high and row["_value"] in (low, high):
+                findings.warn(row["_file"], row["_line"], "value",
+                              f"{row['value']} is an end of the range {low:g} to {high:g} the comment quotes; a range "
+                              "goes in low and high (uncertainty range), the value is the central value or the "
+                              "midpoint with statistic reference_midpoint", code="range-end-as-value")
+                break
+
+
+def check_denominator_ratios(frame: pd.DataFrame, findings: Findings) -> None:
+    """A fraction of empty body (or carcass) mass needs the source's own ratio to live body mass."""
+    from ..schema.descriptors import DENOMINATORS
+
+    for denominator, ratio in DENOMINATORS.items():
+        if ratio is None:
+            continue
+        rows = frame[frame["_denominator"] == denominator]
+        if rows.empty:
+            continue
+        known = set(zip(frame.loc[frame["quantity"] == ratio, "_source"],
+                        frame.loc[frame["quantity"] == ratio, "species"]))
+        for row in rows.to_dict("records"):
+            if (row["_source"], row["species"]) not in known:
+                findings.warn(row["_file"], row["_line"], "denominator",
+                              f"a fraction of {denominator.replace('_', ' ')} mass, but this source gives no {ratio} "
+                              f"of {row['species']}; add the source's ratio (whole_body, {ratio}) so the row can be "
+                              "converted to live body mass", code="denominator-without-ratio")
 
 
 def check_plausibility(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> None:
@@ -225,3 +422,10 @@ def check_plausibility(frame: pd.DataFrame, tree: CuratedTree, findings: Finding
     check_sums(frame, tree, findings)
     check_outliers(frame, findings)
     check_unit_typos(frame, findings)
+    check_organ_above_body(frame, findings)
+    check_parts_above_whole(frame, tree, findings)
+    check_methods_accepted(frame, tree, findings)
+    check_duplicate_groups(frame, findings)
+    check_overlapping_groups(frame, tree, findings)
+    check_range_ends(frame, findings)
+    check_denominator_ratios(frame, findings)

@@ -25,6 +25,7 @@ class CuratedTree:
     values: pd.DataFrame | None = None
     sources: list[dict] = field(default_factory=list)
     file_hashes: dict[str, str] = field(default_factory=dict)
+    groups: pd.DataFrame | None = None  # groups.csv, read and checked by validate
     # (file, column) pairs whose column is missing: per-row findings for them would only repeat it
     missing_columns: set[tuple[str, str]] = field(default_factory=set)
 

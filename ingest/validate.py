@@ -6,6 +6,7 @@ clean tree of many thousand rows costs a few array operations per rule.
 
 from __future__ import annotations
 
+import hashlib
 import re
 
 import numpy as np
@@ -14,16 +15,18 @@ import pandas as pd
 from ..schema import descriptors
 from ..units import UnitError, conversion, forms, parse_unit
 from .findings import Findings
-from .read import BIB_FILE, CuratedTree
+from .read import BIB_FILE, CuratedTree, read_table
+
+GROUPS_FILE = "groups.csv"
 
 
-def _report(frame: pd.DataFrame, mask, column: str, message, findings: Findings, skip: set) -> None:
+def _report(frame: pd.DataFrame, mask, column: str, message, findings: Findings, skip: set, code: str = "") -> None:
     """One finding per row where ``mask`` holds; ``message`` may be a function of the row's cell."""
     bad = frame.loc[np.asarray(mask, dtype=bool)]
     for file, line, cell in zip(bad["_file"], bad["_line"], bad[column] if column in bad else [""] * len(bad)):
         if (file, column) in skip:
             continue
-        findings.error(file, line, column, message(cell) if callable(message) else message)
+        findings.error(file, line, column, message(cell) if callable(message) else message, code=code)
 
 
 def numeric(frame: pd.DataFrame, column: str) -> pd.Series:
@@ -44,9 +47,10 @@ def check_shape(frame: pd.DataFrame, descriptor: dict, findings: Findings, skip:
             allowed = rules["enum"]
             _report(frame, ~empty & ~col.isin(allowed), name,
                     lambda v, a=allowed: f"{v!r} is not one of: {', '.join(a)}", findings, skip)
-        if "pattern" in rules:
-            ok = col.str.fullmatch(rules["pattern"])
-            _report(frame, ~empty & ~ok.astype(bool), name,
+        if "pattern" in rules:  # matched once per distinct cell: ids and groups repeat over many rows
+            pattern = re.compile(rules["pattern"])
+            wrong = [v for v in pd.unique(col.to_numpy(dtype=object)) if v and not pattern.fullmatch(v)]
+            _report(frame, col.isin(wrong) if wrong else np.zeros(len(frame), dtype=bool), name,
                     lambda v, s=spec: f"{v!r} is not well formed; {s['description'][0].lower()}"
                                       f"{s['description'][1:]}", findings, skip)
         if spec["type"] in ("number", "integer"):
@@ -63,7 +67,8 @@ def check_shape(frame: pd.DataFrame, descriptor: dict, findings: Findings, skip:
 
 def check_unique(frame: pd.DataFrame, keys: list[str], findings: Findings, what: str) -> None:
     dup = frame.duplicated(keys + (["_file"] if "_file" in frame and what == "id" else []), keep="first")
-    _report(frame, dup, keys[0], lambda v: f"{what} {v!r} appears more than once; make each {what} unique",
+    scope = f" for this {keys[0]}" if len(keys) > 1 else ""
+    _report(frame, dup, keys[-1], lambda v: f"{what} {v!r} appears more than once{scope}; make each {what} unique",
             findings, set())
 
 
@@ -71,17 +76,50 @@ def check_foreign(frame: pd.DataFrame, column: str, known: set, vocab: str, find
                   skip: set) -> None:
     col = frame[column]
     _report(frame, (col != "") & ~col.isin(known), column,
-            lambda v: f"unknown {column} {v!r}; use an id from vocab/{vocab}.csv or add it there", findings, skip)
+            lambda v: f"unknown {column} {v!r}; use an id from vocab/{vocab}.csv or add it there", findings, skip,
+            code=f"{column.replace('_', '-')}-unknown")
 
 
 def check_vocab(tree: CuratedTree, findings: Findings) -> None:
     for name, frame in tree.vocab.items():
         descriptor = descriptors.VOCABULARIES[name]
         check_shape(frame, descriptor, findings, tree.missing_columns)
-        check_unique(frame, ["id"], findings, "id")
+        check_unique(frame, descriptor["primaryKey"], findings, "id")
     if "compartments" in tree.vocab:
         comps = tree.vocab["compartments"]
         check_foreign(comps, "part_of", set(comps["id"]), "compartments", findings, tree.missing_columns)
+    if "parts" in tree.vocab:
+        parts = tree.vocab["parts"]
+        check_foreign(parts, "part_of", set(parts["id"]), "parts", findings, tree.missing_columns)
+    species = set(tree.vocab["species"]["id"]) if "species" in tree.vocab else set()
+    for name in ("classes", "body_surface"):
+        if name in tree.vocab:
+            check_foreign(tree.vocab[name], "species", species, "species", findings, tree.missing_columns)
+    if "body_surface" in tree.vocab:
+        bsa = tree.vocab["body_surface"]
+        _report(bsa, (bsa["formula"] == "meeh") & (bsa["k"] == ""), "k",
+                "is empty; Meeh's formula needs the species' k (area in cm² for mass in g)", findings,
+                tree.missing_columns, code="bsa-k-missing")
+        _report(bsa, (bsa["formula"] != "meeh") & (bsa["k"] != ""), "k",
+                "is only used with formula meeh; clear it", findings, tree.missing_columns, code="bsa-k-unused")
+    if "methods" in tree.vocab and "quantities" in tree.vocab:
+        quantities = set(tree.vocab["quantities"]["id"]) | {"*"}
+        scopes = species | set(descriptors.TAXON_CLASSES)
+        for row in tree.vocab["methods"].to_dict("records"):
+            for q in row["quantities"].split():
+                if q not in quantities:
+                    findings.error(row["_file"], row["_line"], "quantities", f"unknown quantity {q!r}; use ids "
+                                   "from vocab/quantities.csv, or * for any quantity", code="method-quantity-unknown")
+            for where in row["not_accepted_in"].split():
+                scope, _, quantity = where.partition(":")
+                if scope not in scopes:
+                    findings.error(row["_file"], row["_line"], "not_accepted_in", f"{scope!r} is neither a taxon "
+                                   f"class ({', '.join(descriptors.TAXON_CLASSES)}) nor a species id",
+                                   code="method-scope-unknown")
+                if quantity and quantity not in row["quantities"].split() and "*" not in row["quantities"].split():
+                    findings.error(row["_file"], row["_line"], "not_accepted_in", f"{where!r} names quantity "
+                                   f"{quantity!r}, which this method does not measure; use one of its quantities",
+                                   code="method-scope-unknown")
     if "quantities" in tree.vocab:
         for row in tree.vocab["quantities"].to_dict("records"):
             try:
@@ -119,7 +157,110 @@ def check_sources(tree: CuratedTree, findings: Findings) -> set[str]:
             if required not in src["fields"]:
                 findings.error(BIB_FILE, src["line"], required, f"entry {src['key']!r} has no {required}; add it")
         keys.add(src["key"])
+    check_derived_from(tree.sources, keys, findings)
     return keys
+
+
+def check_derived_from(sources: list[dict], keys: set[str], findings: Findings) -> None:
+    """``derived_from`` names another existing source, and following it never comes back."""
+    parent = {}
+    for src in sources:
+        target = src["fields"].get("derived_from", "").strip()
+        if not target:
+            continue
+        if target == src["key"]:
+            findings.error(BIB_FILE, src["line"], "derived_from", f"entry {src['key']!r} names itself; give the "
+                           "key of the source whose numbers it reprints", code="derived-from-self")
+        elif target not in keys:
+            findings.error(BIB_FILE, src["line"], "derived_from", f"entry {src['key']!r} names {target!r}, which "
+                           f"is not in {BIB_FILE}; add that source first or fix the key", code="derived-from-unknown")
+        else:
+            parent[src["key"]] = target
+    line = {src["key"]: src["line"] for src in sources}
+    reported = set()
+    for start in sorted(parent):
+        path, key = [start], parent[start]
+        while key in parent and key not in path:
+            path.append(key)
+            key = parent[key]
+        if key in path and not reported & set(path):
+            cycle = path[path.index(key):]
+            reported |= set(cycle)
+            findings.error(BIB_FILE, line[cycle[0]], "derived_from", "derived_from runs in a circle ("
+                           + " → ".join(cycle + [cycle[0]]) + "); one of them must be the original",
+                           code="derived-from-cycle")
+
+
+def read_groups(tree: CuratedTree, findings: Findings) -> pd.DataFrame:
+    """groups.csv at the tree's root (optional): which groups of a source contain which subgroups."""
+    path = tree.root / GROUPS_FILE
+    columns = descriptors.names(descriptors.GROUPS) + ["_file", "_line"]
+    if not path.exists():
+        return pd.DataFrame(columns=columns)
+    tree.file_hashes[GROUPS_FILE] = hashlib.sha256(path.read_bytes()).hexdigest()
+    frame = read_table(path, GROUPS_FILE, descriptors.GROUPS, findings, tree.missing_columns)
+    return pd.DataFrame(columns=columns) if frame is None else frame
+
+
+def check_groups(groups: pd.DataFrame, values: pd.DataFrame, source_keys: set[str], findings: Findings,
+                 skip: set) -> None:
+    """Group relations name existing sources and groups, and no group contains itself."""
+    if groups.empty:
+        return
+    check_shape(groups, descriptors.GROUPS, findings, skip)
+    check_unique(groups, ["source", "group", "contains"], findings, "subgroup list")
+    used = values.groupby("_source")["_group"].agg(set).to_dict() if len(values) else {}
+    children = {}
+    for row in groups.to_dict("records"):
+        src, group = row["source"], row["group"]
+        if src not in source_keys:
+            findings.error(row["_file"], row["_line"], "source", f"unknown source {src!r}; use a citation key "
+                           f"from {BIB_FILE}", code="group-source-unknown")
+            continue
+        children.setdefault((src, group), []).extend(row["contains"].split())
+    for row in groups.to_dict("records"):
+        src, group = row["source"], row["group"]
+        if (src, group) not in children:
+            continue
+        known = used.get(src, set()) | {g for (s, g) in children if s == src}
+        for name in [group, *row["contains"].split()]:
+            if name not in known:
+                column = "group" if name == group else "contains"
+                findings.error(row["_file"], row["_line"], column, f"group {name!r} of {src} is used by no row of "
+                               f"values/{src}.csv and declared nowhere in {GROUPS_FILE}; fix the id or the rows' "
+                               "group", code="group-unknown")
+    # a group reached again through its own subgroups
+    for (src, start) in sorted(children):
+        seen, todo = set(), list(children[(src, start)])
+        while todo:
+            g = todo.pop()
+            if g == start:
+                row = groups[(groups["source"] == src) & (groups["group"] == start)].iloc[0]
+                findings.error(row["_file"], row["_line"], "contains", f"group {start!r} of {src} contains itself "
+                               "through its subgroups; a subgroup is smaller than its group", code="group-cycle")
+                break
+            if g in seen:
+                continue
+            seen.add(g)
+            todo.extend(children.get((src, g), []))
+
+
+def subgroups(groups: pd.DataFrame) -> dict[tuple[str, str], set[str]]:
+    """(source, group) → every group inside it, however deep."""
+    children = {}
+    for r in groups.to_dict("records"):
+        children.setdefault((r["source"], r["group"]), []).extend(r["contains"].split())
+    result = {}
+    for (src, group) in children:
+        seen, todo = set(), list(children[(src, group)])
+        while todo:
+            g = todo.pop()
+            if g in seen or g == group:
+                continue
+            seen.add(g)
+            todo.extend(children.get((src, g), []))
+        result[(src, group)] = seen
+    return result
 
 
 def check_values(tree: CuratedTree, source_keys: set[str], findings: Findings) -> pd.DataFrame:
@@ -132,10 +273,14 @@ def check_values(tree: CuratedTree, source_keys: set[str], findings: Findings) -
         if stem not in source_keys:
             findings.error(file, 1, "file", f"no BibTeX entry {stem!r} in {BIB_FILE}; the file name must be "
                            "the source's citation key")
-    vocab_ids = {name: set(v["id"]) for name, v in tree.vocab.items()}
+    vocab_ids = {name: set(v["id"]) for name, v in tree.vocab.items() if "id" in v}
     for column, vocab in (("species", "species"), ("life_stage", "life_stages"),
-                          ("compartment", "compartments"), ("quantity", "quantities")):
+                          ("compartment", "compartments"), ("quantity", "quantities"), ("part", "parts"),
+                          ("method", "methods")):
         check_foreign(frame, column, vocab_ids.get(vocab, set()), vocab, findings, skip)
+    frame = frame.assign(**{f"_{name}": frame[name].where(frame[name] != "", default)
+                            for name, default in descriptors.defaults(descriptors.VALUES).items()})
+    check_semantics(frame, tree, findings, skip)
 
     value, spread, low, high, n = (numeric(frame, c) for c in ("value", "spread", "low", "high", "n"))
     empty_value = frame["value"] == ""
@@ -171,6 +316,48 @@ def check_values(tree: CuratedTree, source_keys: set[str], findings: Findings) -
     return frame
 
 
+def check_semantics(frame: pd.DataFrame, tree: CuratedTree, findings: Findings, skip: set) -> None:
+    """What a number means: its class names a class of its species, its method applies to its quantity,
+    its denominator, statistic and assumed uncertainty fit the row."""
+    classes = tree.vocab.get("classes")
+    if classes is not None:
+        known = set(zip(classes["species"], classes["id"]))
+        has_class = (frame["class"] != "").to_numpy()
+        unknown = np.zeros(len(frame), dtype=bool)
+        unknown[has_class] = [pair not in known for pair in zip(frame["species"].to_numpy()[has_class],
+                                                                frame["class"].to_numpy()[has_class])]
+        _report(frame, unknown, "class",
+                lambda v: f"unknown class {v!r} for this species; use a class of the row's species from "
+                          "vocab/classes.csv or add it there", findings, skip, code="class-unknown")
+    methods, quantities = tree.vocab.get("methods"), tree.vocab.get("quantities")
+    if methods is not None:
+        applies = {m: set(q.split()) for m, q in zip(methods["id"], methods["quantities"])}
+        rows = frame[(frame["method"] != "") & frame["method"].isin(list(applies))]
+        wrong = [m and "*" not in applies[m] and q not in applies[m] for m, q in zip(rows["method"], rows["quantity"])]
+        bad = rows[np.asarray(wrong, dtype=bool)]
+        for file, line, method, quantity in zip(bad["_file"], bad["_line"], bad["method"], bad["quantity"]):
+            findings.error(file, line, "method", f"method {method!r} does not measure {quantity}; it applies to "
+                           f"{', '.join(sorted(applies[method]))} (vocab/methods.csv); pick the method the source "
+                           "used for this quantity", code="method-wrong-quantity")
+    if quantities is not None:
+        info = quantities.set_index("id")
+        of_body = set(info.index[(info["fraction_of"] == "body_mass")])
+        per_body = set(info.index[info["per"].str.split().apply(lambda p: "body_mass" in p)])
+        denominated = frame["_denominator"] != "live_body"
+        fits = frame["quantity"].isin(of_body) | frame["quantity"].isin(per_body)
+        _report(frame, denominated & ~fits, "denominator",
+                lambda v: f"{v!r} is only for fractions of body mass or per-kg-body-mass values; clear it",
+                findings, skip, code="denominator-not-applicable")
+    kind = frame["uncertainty"]
+    _report(frame, (frame["_uncertainty_assumed"] == "yes") & ~kind.isin(["sd", "se"]), "uncertainty_assumed",
+            "is yes, but only an sd or se read from an unlabelled ± can be assumed; set uncertainty to sd or se, "
+            "or this to no", findings, skip, code="uncertainty-assumed-kind")
+    n = numeric(frame, "n")
+    _report(frame, (frame["_statistic"] == "single_animal") & (n > 1), "statistic",
+            "is single_animal but n is above 1; give the group's statistic or n = 1", findings, skip,
+            code="single-animal-n")
+
+
 def attach_conversion(frame: pd.DataFrame, tree: CuratedTree, findings: Findings, skip: set) -> pd.DataFrame:
     """Convert to canonical units once per (quantity, unit) group, with numpy."""
     quantities = tree.vocab.get("quantities")
@@ -200,14 +387,17 @@ def attach_conversion(frame: pd.DataFrame, tree: CuratedTree, findings: Findings
     )
 
 
-def _measure(frame, column, dimension, unit, findings, skip, what) -> np.ndarray:
+def _measure(frame, column, dimension, unit, findings, skip, what, code="") -> np.ndarray:
     """Parse 'number unit' cells of one column per distinct text, into ``unit``."""
     out = np.full(len(frame), np.nan)
     for text, index in frame.groupby(column, sort=False).indices.items():
         if not text.strip():
             continue
         try:
-            q = parse_unit(text)
+            try:
+                q = parse_unit(text)
+            except UnitError:
+                raise ValueError(text) from None  # pint's words are about units; this cell is an amount
             if q.dimensionality != parse_unit(unit).dimensionality:
                 raise UnitError(f"{text!r} is not {what}; write e.g. {dimension}")
             amount = float(q.to(unit).magnitude)
@@ -216,15 +406,17 @@ def _measure(frame, column, dimension, unit, findings, skip, what) -> np.ndarray
             out[index] = amount
         except (UnitError, Exception) as exc:  # pint's own errors included
             message = str(exc) if isinstance(exc, UnitError) else f"cannot read {text!r}; write e.g. {dimension}"
-            _report(frame.iloc[index], np.ones(len(index)), column, message, findings, skip)
+            _report(frame.iloc[index], np.ones(len(index)), column, message, findings, skip, code=code)
     return out
 
 
 def attach_measures(frame: pd.DataFrame, findings: Findings, skip: set) -> pd.DataFrame:
-    body_kg = _measure(frame, "body_mass", "'0.25 kg'", "kg", findings, skip, "a mass")
+    body_kg = _measure(frame, "body_mass", "'0.25 kg'", "kg", findings, skip, "a mass", "body-mass-unreadable")
     _report(frame, body_kg <= 0, "body_mass", lambda v: f"{v!r} is not positive; give the subjects' mass",
             findings, skip)
-    age_days = _measure(frame, "age", "'10 year'", "day", findings, skip, "an age")
+    age_days = _measure(frame, "age", "'10 year'", "day", findings, skip, "an age", "age-unreadable")
+    _report(frame, age_days < 0, "age", lambda v: f"{v!r} is negative; give the age since birth or hatching",
+            findings, skip, code="age-negative")
     # sd in canonical units: from sd, se·√n, cv·value, or a ci95 of a mean (width / 3.92 · √n)
     kind = frame["uncertainty"].to_numpy()
     f, spread, n = frame["_factor"].to_numpy(), frame["_spread"].to_numpy(), frame["_n"].to_numpy()
@@ -241,4 +433,7 @@ def attach_measures(frame: pd.DataFrame, findings: Findings, skip: set) -> pd.Da
 def validate(tree: CuratedTree, findings: Findings) -> pd.DataFrame:
     check_vocab(tree, findings)
     keys = check_sources(tree, findings)
-    return check_values(tree, keys, findings)
+    frame = check_values(tree, keys, findings)
+    tree.groups = read_groups(tree, findings)
+    check_groups(tree.groups, frame, keys, findings, tree.missing_columns)
+    return frame

@@ -1,7 +1,8 @@
 """bodyplan's schema: store tables and curated-file descriptors, each declared once."""
 
 from . import descriptors
-from .tables import TABLES, BuildInfo, Compartment, InputFile, LifeStage, QuantityDef, Source, Species, Value
+from .tables import (TABLES, BodySurfaceFormula, BuildInfo, Compartment, Group, InputFile, LifeStage, Method, Part,
+                     QuantityDef, Source, Species, SpeciesClass, Value)
 
-__all__ = ["descriptors", "TABLES", "BuildInfo", "Compartment", "InputFile", "LifeStage", "QuantityDef",
-           "Source", "Species", "Value"]
+__all__ = ["descriptors", "TABLES", "BodySurfaceFormula", "BuildInfo", "Compartment", "Group", "InputFile",
+           "LifeStage", "Method", "Part", "QuantityDef", "Source", "Species", "SpeciesClass", "Value"]

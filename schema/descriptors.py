@@ -17,10 +17,18 @@ YES_NO = ["yes", "no"]
 QUANTITY_KINDS = ["absolute", "fraction", "ratio"]
 TAXON_CLASSES = ["mammal", "bird", "fish", "reptile", "amphibian"]
 COMPARTMENT_KINDS = ["whole_body", "organ", "tissue", "fluid", "vessel", "cells", "product", "other"]
+GROUP_ID = r"[a-z0-9][a-z0-9_.\-]*"  # like a row id: 'all', 'male', 'd3.5_f'
+SCOPE = r"[a-z_]+(:[a-z_]+)?"  # where a method is refused: a taxon class or species, optionally ':quantity'
+
+# Which body mass a fraction or per-kg value is taken of, and the quantity holding the source's own
+# ratio of that mass to live body mass (needed to convert the row to live body mass).
+DENOMINATORS = {"live_body": None, "empty_body": "empty_body_mass_fraction", "carcass": "carcass_mass_fraction"}
+STATISTICS = ["mean", "median", "geometric_mean", "single_animal", "reference_midpoint", "mode"]
+N_COUNTS = ["animals", "pens", "studies", "organs", "eggs"]
 
 
 def field(name, type_="string", description="", *, required=False, enum=None, pattern=None,
-          minimum=None, foreign=None):
+          minimum=None, foreign=None, default=None):
     constraints = {}
     if required:
         constraints["required"] = True
@@ -35,6 +43,8 @@ def field(name, type_="string", description="", *, required=False, enum=None, pa
         spec["constraints"] = constraints
     if foreign:
         spec["x-foreign"] = foreign  # vocabulary table whose id this column must name
+    if default is not None:
+        spec["x-default"] = default  # what an empty cell means; the store holds this value
     return spec
 
 
@@ -50,10 +60,19 @@ VALUES = {
               pattern=QUANTITY_TEXT),
         field("sex", description="male, female, mixed or unknown.", required=True, enum=SEXES),
         field("strain", description="Breed or strain as the source names it."),
+        field("class", description="Production class, breed class or strain category below the species, "
+              "from vocab/classes.csv for this species (broiler, dairy, minipig …); empty if not stated.",
+              foreign="classes"),
+        field("group", description="The group of animals within the source; rows with the same group are the "
+              "same animals. Subgroups are declared in groups.csv.", pattern=GROUP_ID, default="all"),
         field("compartment", description="Compartment id from vocab/compartments.csv.", required=True,
               foreign="compartments"),
         field("quantity", description="Quantity id from vocab/quantities.csv.", required=True,
               foreign="quantities"),
+        field("part", description="Which part of the compartment the number covers, from vocab/parts.csv.",
+              foreign="parts", default="tissue"),
+        field("method", description="How the number was measured, from vocab/methods.csv (the method must "
+              "apply to the quantity); empty if not stated.", foreign="methods"),
         field("value", "number", "The number as the source prints it; empty only with missing_reason."),
         field("unit", description="Unit as reported, in pint syntax, e.g. '%', 'g', 'mL/min/kg'.",
               required=True),
@@ -62,9 +81,18 @@ VALUES = {
         field("spread", "number", "The sd or se in the value's unit, or the cv in percent.", minimum=0),
         field("low", "number", "Lower bound of a ci95 or range, in the value's unit."),
         field("high", "number", "Upper bound of a ci95 or range, in the value's unit."),
+        field("statistic", description="What the value is: mean, median, geometric_mean, single_animal, "
+              "reference_midpoint (middle of a range the source gives alone) or mode.", enum=STATISTICS,
+              default="mean"),
+        field("uncertainty_assumed", description="yes when the source prints an unlabelled ± and the kind "
+              "(sd or se) in uncertainty is our assumption.", enum=YES_NO, default="no"),
         field("n", "integer", "Number of subjects.", minimum=1),
+        field("n_counts", description="What n counts: animals, pens, studies, organs or eggs.", enum=N_COUNTS,
+              default="animals"),
         field("body_mass", description="Subjects' mean body mass with a unit, e.g. '0.25 kg'.",
               pattern=QUANTITY_TEXT),
+        field("denominator", description="For fractions of body mass and per-kg values: live_body, empty_body "
+              "(live minus gut contents) or carcass.", enum=list(DENOMINATORS), default="live_body"),
         field("basis", description="measured, derived, estimated or reference.", required=True, enum=BASES),
         field("locator", description="Where in the source: table, page or figure.", required=True),
         field("verified", description="yes if the number was read in the source text, else no.",
@@ -130,12 +158,104 @@ QUANTITIES = {
     ],
 }
 
+METHODS = {
+    "description": "Measurement methods, the quantities each applies to, and whether pooling accepts them.",
+    "primaryKey": ["id"],
+    "fields": [
+        field("id", description="Method id.", required=True, pattern=ID),
+        field("label", description="Name in words.", required=True),
+        field("quantities", description="Quantity ids the method measures (space separated).", required=True),
+        field("accepted", description="yes if pooling accepts the method by default, else no.", required=True,
+              enum=YES_NO),
+        field("not_accepted_in", description="Where the method is not accepted although accepted is yes: taxon "
+              "classes or species ids, each optionally narrowed to one quantity as 'fish:blood_volume' (space "
+              "separated)."),
+        field("reason", description="Why: a published source (authors, year) or 'common practice, no source'.",
+              required=True),
+        field("description", description="What the method measures and how."),
+    ],
+}
+
+PARTS = {
+    "description": "Which part of a compartment a number covers.",
+    "primaryKey": ["id"],
+    "fields": [
+        field("id", description="Part id.", required=True, pattern=ID),
+        field("label", description="Name in words.", required=True),
+        field("part_of", description="The part this one lies within (contents within with_contents), so "
+              "parts can be summed against their whole.", foreign="parts"),
+        field("description", description="What the part includes."),
+    ],
+}
+
+CLASSES = {
+    "description": "Production classes, breed classes and strain categories below a species.",
+    "primaryKey": ["species", "id"],
+    "fields": [
+        field("species", description="Species id from vocab/species.csv.", required=True, foreign="species"),
+        field("id", description="Class id, unique within the species.", required=True, pattern=ID),
+        field("label", description="Name in words.", required=True),
+        field("description", description="What the class covers."),
+    ],
+}
+
+BODY_SURFACE = {
+    "description": "Per species: the formula turning body mass (and height) into body surface area.",
+    "primaryKey": ["species", "formula"],
+    "fields": [
+        field("species", description="Species id from vocab/species.csv.", required=True, foreign="species"),
+        field("formula", description="du_bois or mosteller (need height), or meeh (k·W^(2/3)).", required=True,
+              enum=["du_bois", "mosteller", "meeh"]),
+        field("k", "number", "Meeh's constant for W in g and area in cm² (meeh only).", minimum=0),
+        field("preferred", description="yes for the formula used when none is named.", required=True,
+              enum=YES_NO),
+        field("source", description="Where the formula or k comes from (authors, year) or 'from memory'.",
+              required=True),
+    ],
+}
+
 VOCABULARIES = {
     "species": SPECIES,
     "life_stages": LIFE_STAGES,
     "compartments": COMPARTMENTS,
     "quantities": QUANTITIES,
+    "methods": METHODS,
+    "parts": PARTS,
+    "classes": CLASSES,
+    "body_surface": BODY_SURFACE,
 }
+
+GROUPS = {
+    "description": "Subgroups within a source: group contains the disjoint groups listed in contains (one row "
+                   "per way of splitting it, e.g. by sex and by age).",
+    "primaryKey": ["source", "group", "contains"],
+    "fields": [
+        field("source", description="Citation key of the source.", required=True),
+        field("group", description="Group id used in the source's values file.", required=True, pattern=GROUP_ID),
+        field("contains", description="Disjoint subgroups of group (space separated group ids).", required=True),
+        field("label", description="The group in words."),
+        field("note", description="How the source splits the animals."),
+    ],
+}
+
+BASELINE = {
+    "description": "Reviewed plausibility warnings that stand: check reports them as accepted, not as new.",
+    "primaryKey": ["file", "row_id", "code"],
+    "fields": [
+        field("file", description="The values file, relative to the tree, e.g. values/brown1997.csv.", required=True),
+        field("row_id", description="The row's id in that file.", required=True),
+        field("code", description="The warning's code, e.g. overlapping-groups.", required=True),
+        field("note", description="Why the warning stands (what the reviewer read in the source)."),
+    ],
+}
+
+# Curated tables at the tree's root (optional files): relations and review records, not vocabularies.
+ROOT_TABLES = {"groups": GROUPS, "check_baseline": BASELINE}
+
+
+def defaults(descriptor: dict) -> dict[str, str]:
+    """Column → what an empty cell means, for columns that have a default."""
+    return {f["name"]: f["x-default"] for f in descriptor["fields"] if "x-default" in f}
 
 
 def names(descriptor: dict) -> list[str]:

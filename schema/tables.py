@@ -8,10 +8,10 @@ from __future__ import annotations
 
 from typing import Optional
 
-from sqlalchemy import CheckConstraint, Column, ForeignKey, String, UniqueConstraint
+from sqlalchemy import CheckConstraint, Column, ForeignKey, ForeignKeyConstraint, String, UniqueConstraint
 from sqlmodel import Field, SQLModel
 
-from .descriptors import BASES, SEXES, UNCERTAINTY_KINDS
+from .descriptors import BASES, DENOMINATORS, N_COUNTS, SEXES, STATISTICS, UNCERTAINTY_KINDS
 
 
 def _ref(target: str, **kw):
@@ -65,6 +65,42 @@ class QuantityDef(SQLModel, table=True):
     description: Optional[str] = None
 
 
+class Method(SQLModel, table=True):
+    __tablename__ = "methods"
+    id: str = Field(primary_key=True)
+    label: str
+    quantities: str  # space-separated quantity ids, or * for any
+    accepted: str
+    not_accepted_in: Optional[str] = None
+    reason: str
+    description: Optional[str] = None
+
+
+class Part(SQLModel, table=True):
+    __tablename__ = "parts"
+    id: str = Field(primary_key=True)
+    label: str
+    part_of: Optional[str] = _ref("parts.id", nullable=True)
+    description: Optional[str] = None
+
+
+class SpeciesClass(SQLModel, table=True):
+    __tablename__ = "classes"
+    species: str = Field(sa_column=Column(String, ForeignKey("species.id"), primary_key=True))
+    id: str = Field(primary_key=True)
+    label: str
+    description: Optional[str] = None
+
+
+class BodySurfaceFormula(SQLModel, table=True):
+    __tablename__ = "body_surface"
+    species: str = Field(sa_column=Column(String, ForeignKey("species.id"), primary_key=True))
+    formula: str = Field(primary_key=True)
+    k: Optional[float] = None
+    preferred: str
+    source: str
+
+
 class Source(SQLModel, table=True):
     __tablename__ = "sources"
     id: str = Field(primary_key=True)
@@ -78,6 +114,18 @@ class Source(SQLModel, table=True):
     doi: Optional[str] = None
     citation: str  # formatted one-line citation
     bibtex: str
+    note: Optional[str] = None
+    derived_from: Optional[str] = _ref("sources.id", nullable=True)  # the source whose numbers this one reprints
+
+
+class Group(SQLModel, table=True):
+    """A group of a source that contains disjoint subgroups (data_curated/groups.csv)."""
+
+    __tablename__ = "groups"
+    source_id: str = Field(sa_column=Column(String, ForeignKey("sources.id"), primary_key=True))
+    group_id: str = Field(primary_key=True)
+    contains: str = Field(primary_key=True)  # space-separated disjoint group ids of the same source
+    label: Optional[str] = None
     note: Optional[str] = None
 
 
@@ -94,6 +142,12 @@ class Value(SQLModel, table=True):
         CheckConstraint("(value IS NULL) = (missing_reason IS NOT NULL)", name="empty_only_with_reason"),
         CheckConstraint("low IS NULL OR high IS NULL OR low <= high", name="bounds_ordered"),
         CheckConstraint("subject_body_mass_kg IS NULL OR subject_body_mass_kg > 0", name="positive_body_mass"),
+        CheckConstraint("age_days IS NULL OR age_days >= 0", name="non_negative_age"),
+        CheckConstraint(_in("statistic", STATISTICS), name="statistic_known"),
+        CheckConstraint(_in("n_counts", N_COUNTS), name="n_counts_known"),
+        CheckConstraint(_in("denominator", list(DENOMINATORS)), name="denominator_known"),
+        CheckConstraint("(uncertainty_assumed = 0 OR uncertainty_assumed = 1)", name="uncertainty_assumed_flag"),
+        ForeignKeyConstraint(["species_id", "class_id"], ["classes.species", "classes.id"]),
     )
     id: Optional[int] = Field(default=None, primary_key=True)
     source_id: str = _ref("sources.id", nullable=False, index=True)
@@ -128,6 +182,14 @@ class Value(SQLModel, table=True):
     comment: Optional[str] = None
     file: str
     line: int
+    class_id: Optional[str] = None  # with species_id, a row of classes
+    group_id: str = "all"
+    part_id: str = _ref("parts.id", nullable=False)
+    method_id: Optional[str] = _ref("methods.id", nullable=True)
+    statistic: str = "mean"
+    uncertainty_assumed: bool = False
+    n_counts: str = "animals"
+    denominator: str = "live_body"
 
 
 class BuildInfo(SQLModel, table=True):
@@ -142,4 +204,5 @@ class InputFile(SQLModel, table=True):
     sha256: str
 
 
-TABLES = [Species, LifeStage, Compartment, QuantityDef, Source, Value, BuildInfo, InputFile]
+TABLES = [Species, LifeStage, Compartment, QuantityDef, Method, Part, SpeciesClass, BodySurfaceFormula, Source, Group,
+          Value, BuildInfo, InputFile]

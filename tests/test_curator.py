@@ -33,11 +33,23 @@ def snapshot(root: Path) -> dict[str, bytes]:
     return {str(p.relative_to(root)): p.read_bytes() for p in sorted(root.rglob("*")) if p.is_file()}
 
 
-def append(root: Path, source: str, line: str) -> int:
-    """Append a row to a values file; returns its line number."""
+# the columns every row has; the others (group, method, part …) stay empty here, meaning their defaults
+BASIC = ["id", "species", "life_stage", "age", "sex", "strain", "compartment", "quantity", "value", "unit",
+         "uncertainty", "spread", "low", "high", "n", "body_mass", "basis", "locator", "verified", "missing_reason",
+         "comment"]
+
+
+def append(root: Path, source: str, line: str, **more: str) -> int:
+    """Append a row given in the BASIC columns (plus any other column by name); returns its line number."""
+    import csv
+    import io
+
+    cells = dict(zip(BASIC, next(csv.reader([line])), strict=True), **more)
+    out = io.StringIO()
+    csv.writer(out, lineterminator="\n").writerow([cells.get(c, "") for c in descriptors.names(descriptors.VALUES)])
     path = root / "values" / f"{source}.csv"
     text = path.read_text()
-    path.write_text(text + line + "\n")
+    path.write_text(text + out.getvalue())
     return text.count("\n") + 1
 
 

@@ -12,8 +12,9 @@ import pytest
 
 from bodyplan.ingest import CuratedDataError, build, check
 
-HEADER = ("id,species,life_stage,age,sex,strain,compartment,quantity,value,unit,uncertainty,spread,low,high,n,"
-          "body_mass,basis,locator,verified,missing_reason,comment")
+HEADER = ("id,species,life_stage,age,sex,strain,class,group,compartment,quantity,part,method,value,unit,uncertainty,"
+          "spread,low,high,statistic,uncertainty_assumed,n,n_counts,body_mass,denominator,basis,locator,verified,"
+          "missing_reason,comment")
 V = "values/testsource2020.csv"
 
 ERRORS = {
@@ -93,8 +94,7 @@ def test_empty_value_with_reason_is_kept_as_a_gap(fixture_tree, tmp_path):
 
 def test_reason_beside_a_value_is_an_error(fixture_tree):
     path = fixture_tree / V
-    path.write_text(path.read_text().replace(",12,kg,sd,1.5,,,6,,measured,Table 1,no,,",
-                                             ",12,kg,sd,1.5,,,6,,measured,Table 1,no,not reported,"))
+    path.write_text(path.read_text().replace(",measured,Table 1,no,,", ",measured,Table 1,no,not reported,"))
     findings, _, _ = check(fixture_tree)
     assert [str(f) for f in findings.errors] == [
         f"{V}:2: missing_reason: is given but the value is not empty; clear one of them"]
@@ -114,7 +114,7 @@ def test_row_with_too_many_fields(fixture_tree):
     path.write_text("".join(lines))
     findings, _, _ = check(fixture_tree)
     assert [str(f) for f in findings.errors] == [
-        f"{V}:3: row: has 22 fields but the header has 21; quote fields that contain commas"]
+        f"{V}:3: row: has 30 fields but the header has 29; quote fields that contain commas"]
 
 
 def test_line_numbers_count_quoted_line_breaks(fixture_tree):

@@ -22,7 +22,8 @@ FACETS = ["species_id", "life_stage_id", "compartment_id", "quantity_id", "basis
 
 # store column of curated_values → curated-file column whose description it keeps
 CURATED_COLUMN = {"species_id": "species", "life_stage_id": "life_stage", "compartment_id": "compartment",
-                  "quantity_id": "quantity", "row_id": "id"}
+                  "quantity_id": "quantity", "row_id": "id", "class_id": "class", "group_id": "group",
+                  "part_id": "part", "method_id": "method"}
 
 TABLE_DESCRIPTIONS = {
     "curated_values": "One row per value printed in a source, as reported and converted to the quantity's "
@@ -30,6 +31,7 @@ TABLE_DESCRIPTIONS = {
     "sources": "The documents values come from: BibTeX entries with a formatted citation and DOI.",
     "build_info": "How this store was built: content hash, build time and versions.",
     "input_files": "Every curated file the store was built from, with its SHA-256 hash.",
+    "groups": descriptors.GROUPS["description"],
 }
 
 STORE_COLUMNS = {  # columns that exist only in the store
@@ -63,7 +65,11 @@ STORE_COLUMNS = {  # columns that exist only in the store
         "citation": "Formatted one-line citation.",
         "bibtex": "The BibTeX entry as curated.",
         "note": "Note from the BibTeX entry.",
+        "derived_from": "The source whose numbers this one reprints (pooling uses the original).",
     },
+    "groups": {"source_id": "Citation key of the source.", "group_id": "Group id used in the source's values file.",
+               "contains": "Its disjoint subgroups (space separated group ids).", "label": "The group in words.",
+               "note": "How the source splits the animals."},
     "build_info": {"key": "What is recorded.", "value": "The record."},
     "input_files": {"path": "Curated file, relative to the curated data folder.",
                     "sha256": "SHA-256 hash of the file's bytes."},

@@ -1,0 +1,421 @@
+"""What each number means: groups, classes, parts, methods, statistics and the checks built on them.
+
+Every row here is invented for tests and says so; the trees are copies of tests/data/good/ with the
+bundled vocabularies laid over them, so the methods, parts and classes are the real ones.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import shutil
+from pathlib import Path
+
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from bodyplan.api.locate import bundled_data_dir
+from bodyplan.ingest import build, check
+from bodyplan.ingest.baseline import CheckFilesError, check_files
+from bodyplan.ingest.plausibility import ranges_in_text
+from bodyplan.schema import descriptors
+
+GOOD = Path(__file__).parent / "data" / "good"
+V = "values/testsource2020.csv"
+W = "values/testsource2021.csv"
+BASE = {"species": "dog", "life_stage": "adult", "sex": "male", "strain": "Beagle", "uncertainty": "none",
+        "basis": "measured", "locator": "Table 9", "verified": "no", "comment": "invented for tests"}
+
+
+@pytest.fixture
+def tree(tmp_path) -> Path:
+    root = tmp_path / "tree"
+    shutil.copytree(GOOD, root)
+    shutil.rmtree(root / "vocab")
+    shutil.copytree(bundled_data_dir() / "vocab", root / "vocab")
+    return root
+
+
+def add(root: Path, file: str, **cells: str) -> int:
+    """Append a row (BASE plus ``cells``) to a values file; returns its line number."""
+    path = root / file
+    if not path.exists():
+        path.write_text(",".join(descriptors.names(descriptors.VALUES)) + "\n")
+    row = dict(BASE, **cells)
+    out = io.StringIO()
+    csv.writer(out, lineterminator="\n").writerow([row.get(c, "") for c in descriptors.names(descriptors.VALUES)])
+    text = path.read_text()
+    path.write_text(text + out.getvalue())
+    return text.count("\n") + 1
+
+
+def errors(root: Path) -> list[tuple[str, str]]:
+    findings, _t, _f = check(root)
+    return [(str(f), f.code) for f in findings.errors]
+
+
+def warnings(root: Path, code: str) -> list[str]:
+    findings, _t, _f = check(root)
+    assert not findings.errors, [str(f) for f in findings.errors]
+    return [str(f) for f in findings.warnings if f.code == code]
+
+
+def test_bundled_vocabularies_and_defaults_validate(tree):
+    assert errors(tree) == []
+
+
+# --- scenario tests: each bad input gives one located error with its code ------------------------------
+
+def test_unknown_method(tree):
+    line = add(tree, V, id="x", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg",
+               method="guesswork")
+    assert errors(tree) == [(f"{V}:{line}: method: unknown method 'guesswork'; use an id from vocab/methods.csv "
+                             "or add it there", "method-unknown")]
+
+
+def test_method_not_for_this_quantity(tree):
+    line = add(tree, V, id="x", compartment="whole_body", quantity="gfr", value="3.5", unit="mL/min/kg",
+               method="thermodilution")
+    assert errors(tree) == [(f"{V}:{line}: method: method 'thermodilution' does not measure gfr; it applies to "
+                             "cardiac_output (vocab/methods.csv); pick the method the source used for this quantity",
+                             "method-wrong-quantity")]
+
+
+def test_unknown_part(tree):
+    line = add(tree, V, id="x", compartment="kidney", quantity="tissue_mass", value="0.05", unit="kg",
+               part="left_half")
+    assert errors(tree) == [(f"{V}:{line}: part: unknown part 'left_half'; use an id from vocab/parts.csv or add it "
+                             "there", "part-unknown")]
+
+
+def test_class_of_another_species(tree):
+    line = add(tree, V, id="x", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg", **{"class": "broiler"})
+    assert errors(tree) == [(f"{V}:{line}: class: unknown class 'broiler' for this species; use a class of the "
+                             "row's species from vocab/classes.csv or add it there", "class-unknown")]
+
+
+def test_class_of_its_species_is_fine(tree):
+    add(tree, V, id="x", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg", **{"class": "beagle"})
+    assert errors(tree) == []
+
+
+@pytest.mark.parametrize("age, message, code", [
+    ("-3 week", "'-3 week' is negative; give the age since birth or hatching", "age-negative"),
+    ("3 kg", "'3 kg' is not an age; write e.g. '10 year'", "age-unreadable"),
+    ("3 weeks old", "cannot read '3 weeks old'; write e.g. '10 year'", "age-unreadable"),
+])
+def test_bad_age(tree, age, message, code):
+    line = add(tree, V, id="x", age=age, compartment="liver", quantity="tissue_mass", value="0.3", unit="kg")
+    assert errors(tree) == [(f"{V}:{line}: age: {message}", code)]
+
+
+def test_age_is_stored_in_days(tree, tmp_path):
+    add(tree, V, id="x", age="8 week", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg")
+    import sqlite3
+
+    build(tree, tmp_path / "s.sqlite")
+    with sqlite3.connect(tmp_path / "s.sqlite") as conn:
+        assert conn.execute("SELECT age_days FROM curated_values WHERE row_id = 'x'").fetchone() == (56.0,)
+
+
+def test_denominator_only_for_body_mass_fractions(tree):
+    line = add(tree, V, id="x", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg",
+               denominator="empty_body")
+    assert errors(tree) == [(f"{V}:{line}: denominator: 'empty_body' is only for fractions of body mass or "
+                             "per-kg-body-mass values; clear it", "denominator-not-applicable")]
+
+
+def test_assumed_uncertainty_needs_sd_or_se(tree):
+    line = add(tree, V, id="x", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg",
+               uncertainty_assumed="yes")
+    assert [code for _m, code in errors(tree)] == ["uncertainty-assumed-kind"]
+    assert errors(tree)[0][0].startswith(f"{V}:{line}: uncertainty_assumed: is yes, but")
+
+
+def test_single_animal_with_n_above_1(tree):
+    line = add(tree, V, id="x", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg", n="5",
+               statistic="single_animal")
+    assert errors(tree) == [(f"{V}:{line}: statistic: is single_animal but n is above 1; give the group's "
+                             "statistic or n = 1", "single-animal-n")]
+
+
+def test_unknown_statistic_and_n_counts(tree):
+    line = add(tree, V, id="x", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg",
+               statistic="average", n_counts="cages")
+    assert [m for m, _c in errors(tree)] == [
+        f"{V}:{line}: n_counts: 'cages' is not one of: {', '.join(descriptors.N_COUNTS)}",
+        f"{V}:{line}: statistic: 'average' is not one of: {', '.join(descriptors.STATISTICS)}"]
+
+
+def write_groups(root: Path, *rows: str) -> None:
+    (root / "groups.csv").write_text("source,group,contains,label,note\n" + "".join(r + "\n" for r in rows))
+
+
+def test_group_relation_to_a_missing_group(tree):
+    add(tree, V, id="x_m", group="male", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg")
+    write_groups(tree, "testsource2020,all,male femal,,")
+    assert errors(tree) == [("groups.csv:2: contains: group 'femal' of testsource2020 is used by no row of "
+                             "values/testsource2020.csv and declared nowhere in groups.csv; fix the id or the rows' "
+                             "group", "group-unknown")]
+
+
+def test_group_relation_of_a_missing_source(tree):
+    write_groups(tree, "nosuchsource,all,male female,,")
+    assert errors(tree) == [("groups.csv:2: source: unknown source 'nosuchsource'; use a citation key from "
+                             "sources.bib", "group-source-unknown")]
+
+
+def test_groups_in_a_circle(tree):
+    for g in ("a", "b"):
+        add(tree, V, id=f"x_{g}", group=g, compartment="liver", quantity="tissue_mass", value="0.3", unit="kg")
+    write_groups(tree, "testsource2020,a,b,,", "testsource2020,b,a,,")
+    found = errors(tree)
+    assert {code for _m, code in found} == {"group-cycle"}
+    assert found[0][0] == ("groups.csv:2: contains: group 'a' of testsource2020 contains itself through its "
+                           "subgroups; a subgroup is smaller than its group")
+
+
+def test_a_group_split_two_ways_is_fine(tree):
+    for g in ("male", "female", "young", "old"):
+        add(tree, V, id=f"x_{g}", group=g, compartment="liver", quantity="tissue_mass", value="0.3", unit="kg")
+    write_groups(tree, "testsource2020,all,male female,by sex,", "testsource2020,all,young old,by age,")
+    assert errors(tree) == []
+
+
+def add_bib_field(root: Path, key: str, field: str) -> None:
+    bib = root / "sources.bib"
+    text = bib.read_text()
+    start = text.index(f"@misc{{{key},")
+    end = text.index("\n}", start)
+    bib.write_text(text[:end] + f",\n  {field}" + text[end:])
+
+
+def test_derived_from_a_missing_source(tree):
+    add_bib_field(tree, "testsource2021", "derived_from = {nosuch1999}")
+    assert errors(tree) == [("sources.bib:7: derived_from: entry 'testsource2021' names 'nosuch1999', which is not "
+                             "in sources.bib; add that source first or fix the key", "derived-from-unknown")]
+
+
+def test_derived_from_in_a_circle(tree):
+    add_bib_field(tree, "testsource2020", "derived_from = {testsource2021}")
+    add_bib_field(tree, "testsource2021", "derived_from = {testsource2020}")
+    assert errors(tree) == [("sources.bib:1: derived_from: derived_from runs in a circle (testsource2020 → "
+                             "testsource2021 → testsource2020); one of them must be the original",
+                             "derived-from-cycle")]
+
+
+def test_derived_from_reaches_the_store(tree, tmp_path):
+    import sqlite3
+
+    add_bib_field(tree, "testsource2021", "derived_from = {testsource2020}")
+    build(tree, tmp_path / "s.sqlite")
+    with sqlite3.connect(tmp_path / "s.sqlite") as conn:
+        assert conn.execute("SELECT id, derived_from FROM sources ORDER BY id").fetchall() == [
+            ("testsource2020", None), ("testsource2021", "testsource2020")]
+
+
+def test_method_vocabulary_names_known_quantities(tree):
+    path = tree / "vocab" / "methods.csv"
+    path.write_text(path.read_text().replace("thermodilution,thermodilution,cardiac_output,",
+                                             "thermodilution,thermodilution,cardiac_outptu,"))
+    found = errors(tree)
+    assert [code for _m, code in found] == ["method-quantity-unknown"]
+    assert ": quantities: unknown quantity 'cardiac_outptu'" in found[0][0]
+
+
+def test_new_columns_reach_the_store_with_defaults(tree, tmp_path):
+    import sqlite3
+
+    add(tree, V, id="x", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg", group="control",
+        method="dissection_weighing", part="with_blood", **{"class": "beagle"})
+    build(tree, tmp_path / "s.sqlite")
+    with sqlite3.connect(tmp_path / "s.sqlite") as conn:
+        got = conn.execute("SELECT class_id, group_id, part_id, method_id, statistic, uncertainty_assumed, n_counts, "
+                           "denominator FROM curated_values WHERE row_id IN ('x', 'dog_bm') ORDER BY row_id").fetchall()
+        assert got == [(None, "all", "tissue", None, "mean", 0, "animals", "live_body"),
+                       ("beagle", "control", "with_blood", "dissection_weighing", "mean", 0, "animals", "live_body")]
+        with pytest.raises(sqlite3.IntegrityError):  # the store refuses what validation refuses
+            conn.execute("UPDATE curated_values SET statistic = 'average' WHERE row_id = 'x'")
+
+
+# --- plausibility: each error class caught by a warning with its code -----------------------------------
+
+def test_organ_above_body_mass(tree):
+    line = add(tree, V, id="x", compartment="muscle", quantity="tissue_mass", value="15", unit="kg", body_mass="12 kg")
+    assert warnings(tree, "organ-above-body-mass") == [
+        f"{V}:{line}: value: warning: 15 kg of muscle is more than the body mass 12 kg of its animals; check the "
+        "unit, the number and the body mass"]
+
+
+def test_organ_above_the_sources_body_mass_row(tree):
+    # the good tree's dog_bm row (12 kg, 3 year, male Beagle) is the body mass of these animals
+    line = add(tree, V, id="x", age="3 year", compartment="muscle", quantity="tissue_mass", value="13", unit="kg")
+    assert warnings(tree, "organ-above-body-mass") == [
+        f"{V}:{line}: value: warning: 13 kg of muscle is more than the body mass 12 kg of its animals; check the "
+        "unit, the number and the body mass"]
+
+
+def test_parts_above_their_whole(tree):
+    whole = add(tree, V, id="k", compartment="kidney", quantity="tissue_mass", value="60", unit="g")
+    add(tree, V, id="kl", compartment="left_kidney", quantity="tissue_mass", value="35", unit="g")
+    add(tree, V, id="kr", compartment="right_kidney", quantity="tissue_mass", value="34", unit="g")
+    assert warnings(tree, "parts-above-whole") == [
+        f"{V}:{whole}: value: warning: the parts left_kidney + right_kidney of these animals sum to 0.069 kg, above "
+        "the whole kidney (tissue) 0.06 kg; check the compartments and parts of these rows"]
+
+
+def test_contents_above_organ_with_contents(tree):
+    whole = add(tree, V, id="s", compartment="stomach", quantity="tissue_mass", value="200", unit="g",
+                part="with_contents")
+    add(tree, V, id="sc", compartment="stomach", quantity="tissue_mass", value="150", unit="g", part="contents")
+    add(tree, V, id="st", compartment="stomach", quantity="tissue_mass", value="80", unit="g")
+    assert warnings(tree, "parts-above-whole") == [
+        f"{V}:{whole}: value: warning: the parts stomach (contents) + stomach of these animals sum to 0.23 kg, above "
+        "the whole stomach (with_contents) 0.2 kg; check the compartments and parts of these rows"]
+
+
+def test_parts_of_other_animals_are_not_summed(tree):
+    add(tree, V, id="k", group="a", compartment="kidney", quantity="tissue_mass", value="60", unit="g")
+    add(tree, V, id="kl", group="b", compartment="left_kidney", quantity="tissue_mass", value="35", unit="g")
+    add(tree, V, id="kr", group="b", compartment="right_kidney", quantity="tissue_mass", value="34", unit="g")
+    assert warnings(tree, "parts-above-whole") == []
+
+
+def test_method_not_accepted_for_birds(tree):
+    line = add(tree, V, id="x", species="chicken", strain="", compartment="whole_body", quantity="gfr",
+               value="8.4", unit="mL/min/kg", method="exogenous_creatinine_clearance")
+    add(tree, V, id="y", compartment="whole_body", quantity="gfr", value="3.5", unit="mL/min/kg",
+        method="exogenous_creatinine_clearance")  # a dog: accepted
+    found = warnings(tree, "method-not-accepted")
+    assert len(found) == 1 and found[0].startswith(
+        f"{V}:{line}: method: warning: exogenous_creatinine_clearance is not accepted for gfr of chicken (birds:")
+    assert "(Gasthuys et al. 2019)" in found[0]
+
+
+def test_method_refused_for_one_quantity_only(tree):
+    bv = add(tree, V, id="bv", species="rainbow_trout", strain="", compartment="blood", quantity="blood_volume",
+             value="45", unit="mL/kg", method="dye_dilution")
+    add(tree, V, id="co", species="rainbow_trout", strain="", compartment="whole_body", quantity="cardiac_output",
+        value="1.1", unit="L/h/kg", method="dye_dilution")
+    found = warnings(tree, "method-not-accepted")
+    assert [f.split(": warning")[0] for f in found] == [f"{V}:{bv}: method"]
+
+
+def test_same_group_counted_twice(tree):
+    first = add(tree, V, id="a", compartment="spleen", quantity="tissue_mass", value="30", unit="g")
+    second = add(tree, V, id="b", compartment="spleen", quantity="tissue_mass", value="32", unit="g")
+    add(tree, V, id="c", group="other", compartment="spleen", quantity="tissue_mass", value="31", unit="g")
+    assert warnings(tree, "duplicate-group") == [
+        f"{V}:{second}: group: warning: group 'all' already has tissue_mass of spleen by the same method at line "
+        f"{first} (row a); give each set of animals its own group (e.g. one per diet or age), or keep one of the rows"]
+
+
+def test_two_forms_of_one_measurement_are_not_a_duplicate(tree):
+    # the good tree gives human cardiac output per m² and per kg for the same group: one number, two forms
+    assert warnings(tree, "duplicate-group") == []
+
+
+def test_group_and_its_subgroup_overlap(tree):
+    whole = add(tree, V, id="a", compartment="spleen", quantity="tissue_mass", value="30", unit="g")
+    sub = add(tree, V, id="m", group="male", compartment="spleen", quantity="tissue_mass", value="32", unit="g")
+    add(tree, V, id="f", group="female", compartment="heart", quantity="tissue_mass", value="80", unit="g")
+    write_groups(tree, "testsource2020,all,male female,,")
+    assert warnings(tree, "overlapping-groups") == [
+        f"{V}:{sub}: group: warning: group 'male' lies within group 'all' (groups.csv), which also gives tissue_mass "
+        f"of spleen at line {whole}; pooling uses one of them; accept this warning in check_baseline.csv once reviewed"]
+
+
+def test_range_end_stored_as_value(tree):
+    line = add(tree, V, id="x", compartment="spleen", quantity="tissue_mass", value="40", unit="g",
+               uncertainty="range", low="25", high="40")
+    assert warnings(tree, "range-end-as-value") == [
+        f"{V}:{line}: value: warning: 40 equals the range's high end; a range end is not a central value: give the "
+        "source's mean or median, or the midpoint with statistic reference_midpoint"]
+
+
+def test_range_end_quoted_in_the_comment(tree):
+    line = add(tree, V, id="x", compartment="spleen", quantity="tissue_mass", value="25", unit="g",
+               comment="invented for tests; spleen mass from 25 to 40 g")
+    assert warnings(tree, "range-end-as-value") == [
+        f"{V}:{line}: value: warning: 25 is an end of the range 25 to 40 the comment quotes; a range goes in low and "
+        "high (uncertainty range), the value is the central value or the midpoint with statistic reference_midpoint"]
+
+
+def test_fraction_of_empty_body_needs_the_ratio(tree):
+    line = add(tree, W, id="x", compartment="liver", quantity="tissue_mass_fraction", value="1.4", unit="%",
+               denominator="empty_body")
+    assert warnings(tree, "denominator-without-ratio") == [
+        f"{W}:{line}: denominator: warning: a fraction of empty body mass, but this source gives no "
+        "empty_body_mass_fraction of dog; add the source's ratio (whole_body, empty_body_mass_fraction) so the row "
+        "can be converted to live body mass"]
+    add(tree, W, id="ebm", compartment="whole_body", quantity="empty_body_mass_fraction", value="0.92", unit="1")
+    assert warnings(tree, "denominator-without-ratio") == []
+
+
+# --- checking named files, and the baseline of accepted warnings -------------------------------------------
+
+def test_check_files_reports_only_the_named_file(tree):
+    add(tree, V, id="x", compartment="muscle", quantity="tissue_mass", value="15", unit="kg", body_mass="12 kg")
+    add(tree, W, id="y", compartment="muscle", quantity="tissue_mass", value="90", unit="kg", body_mass="70 kg")
+    result = check_files([tree / W])
+    assert {f.file for f in result.warnings} == {W} and result.accepted == []
+    assert [f.code for f in result.warnings if f.code == "organ-above-body-mass"] == ["organ-above-body-mass"]
+    assert result.rows == 4 and result.root == tree.resolve()
+
+
+def test_baseline_sets_reviewed_warnings_apart(tree):
+    a = add(tree, V, id="a", compartment="spleen", quantity="tissue_mass", value="30", unit="g")
+    b = add(tree, V, id="b", compartment="spleen", quantity="tissue_mass", value="32", unit="g")
+    c = add(tree, V, id="c", compartment="spleen", quantity="tissue_mass", value="33", unit="g")
+    assert [f.line for f in check_files([tree / V]).warnings if f.code == "duplicate-group"] == [b, c]
+    (tree / "check_baseline.csv").write_text("file,row_id,code,note\n"
+                                             f"{V},b,duplicate-group,invented for tests: reviewed\n")
+    result = check_files([tree / V])
+    assert [f.line for f in result.warnings if f.code == "duplicate-group"] == [c]
+    assert [(f.line, f.code) for f in result.accepted] == [(b, "duplicate-group")]
+    assert a < b
+
+
+def test_check_files_refuses_files_of_two_trees(tree, tmp_path):
+    other = tmp_path / "other"
+    shutil.copytree(tree, other)
+    with pytest.raises(CheckFilesError, match="2 curated trees"):
+        check_files([tree / V, other / V])
+    with pytest.raises(CheckFilesError, match="no such file"):
+        check_files([tree / "values" / "nosuch.csv"])
+
+
+# --- parsers: property tests -------------------------------------------------------------------------------
+
+numbers = st.decimals(min_value=0, max_value=10000, places=2, allow_nan=False).map(lambda d: f"{d.normalize():f}")
+
+
+@settings(max_examples=200, deadline=None)
+@given(low=numbers, high=numbers, form=st.sampled_from(["from {} to {}", "{} to {}", "{}–{}", "{} – {}"]),
+       before=st.sampled_from(["", "range ", "the values ran "]), after=st.sampled_from(["", " g", " mL/kg; n = 8"]))
+def test_a_quoted_range_is_read_back(low, high, form, before, after):
+    text = before + form.format(low, high) + after
+    assert (float(low), float(high)) in ranges_in_text(text)
+
+
+@settings(max_examples=200, deadline=None)
+@given(text=st.text(alphabet=st.characters(blacklist_characters="0123456789"), max_size=60))
+def test_text_without_digits_has_no_range(text):
+    assert ranges_in_text(text) == []
+
+
+@settings(max_examples=60, deadline=None)
+@given(amount=st.floats(min_value=0, max_value=100, allow_nan=False, allow_infinity=False),
+       unit=st.sampled_from(["day", "week", "month", "year", "h"]))
+def test_any_age_with_a_time_unit_is_stored_in_days(tmp_path_factory, amount, unit):
+    from bodyplan.units import ureg
+
+    root = tmp_path_factory.mktemp("age") / "tree"
+    shutil.copytree(GOOD, root)
+    add(root, V, id="x", age=f"{amount:g} {unit}", compartment="liver", quantity="tissue_mass", value="0.3",
+        unit="kg")
+    findings, _t, frame = check(root, plausibility=False)
+    assert not findings.errors, [str(f) for f in findings.errors]
+    days = frame.loc[frame["id"] == "x", "_age_days"].iloc[0]
+    assert days == pytest.approx(float(ureg.Quantity(float(f"{amount:g}"), unit).to("day").magnitude))
