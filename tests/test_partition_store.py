@@ -20,8 +20,9 @@ from bodyplan.api import kp_methods as km
 from bodyplan.api.partition import (PartitionError, composition_coverage, model_partition_coefficients,
                                     species_composition)
 
-HEADER = ("id,species,life_stage,age,sex,strain,compartment,quantity,value,unit,uncertainty,spread,low,high,n,"
-          "body_mass,basis,locator,verified,missing_reason,comment")
+HEADER = ("id,species,life_stage,age,sex,strain,class,group,compartment,quantity,part,method,value,unit,uncertainty,"
+          "spread,low,high,statistic,uncertainty_assumed,n,n_counts,body_mass,denominator,basis,locator,verified,"
+          "missing_reason,comment")
 INVENTED = [  # (id, species, compartment, quantity, value, unit)
     ("rat_p_nl", "rat", "plasma", "tissue_neutral_lipid_fraction", 0.0023, "1"),
     ("rat_p_np", "rat", "plasma", "tissue_neutral_phospholipid_fraction", 0.0013, "1"),
@@ -52,7 +53,7 @@ def store(tmp_path_factory):
 
     root = tmp_path_factory.mktemp("kpstore") / "data"
     shutil.copytree(bundled_data_dir(), root)
-    rows = [f"{i},{sp},adult,,unknown,,{comp},{q},{v},{u},none,,,,,,reference,Table 1,no,,invented for tests"
+    rows = [f"{i},{sp},adult,,unknown,,,,{comp},{q},,,{v},{u},none,,,,,,,,,,reference,Table 1,no,,invented for tests"
             for i, sp, comp, q, v, u in INVENTED]
     (root / "values" / "kptest2026.csv").write_text("\n".join([HEADER, *rows]) + "\n", encoding="utf-8")
     with open(root / "sources.bib", "a", encoding="utf-8") as fh:

@@ -217,7 +217,7 @@ def test_derived_from_reaches_the_store(tree, tmp_path):
 
 def test_method_vocabulary_names_known_quantities(tree):
     path = tree / "vocab" / "methods.csv"
-    path.write_text(path.read_text().replace("thermodilution,thermodilution,cardiac_output,",
+    path.write_text(path.read_text().replace("thermodilution,thermodilution,cardiac_output blood_flow,",
                                              "thermodilution,thermodilution,cardiac_outptu,"))
     found = errors(tree)
     assert [code for _m, code in found] == ["method-quantity-unknown"]
