@@ -78,7 +78,7 @@ def test_method_not_for_this_quantity(tree):
     line = add(tree, V, id="x", compartment="whole_body", quantity="gfr", value="3.5", unit="mL/min/kg",
                method="thermodilution")
     assert errors(tree) == [(f"{V}:{line}: method: method 'thermodilution' does not measure gfr; it applies to "
-                             "cardiac_output (vocab/methods.csv); pick the method the source used for this quantity",
+                             "blood_flow, cardiac_output (vocab/methods.csv); pick the method the source used for this quantity",
                              "method-wrong-quantity")]
 
 
