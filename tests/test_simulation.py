@@ -252,6 +252,21 @@ def test_flow_limited_model_from_the_sbml_file(real_store, species, body_mass, s
     assert steady[0] / reference.volumes[0] == pytest.approx(INFUSION / clearance, rel=1e-9)
 
 
+def test_the_checks_catch_a_miswired_portal_circulation(real_store):
+    """The steady-state check fails when the gut drains into blood instead of the liver: its flow then
+    bypasses the liver and the clearance the model reaches is not the well-stirred clearance of Q_H."""
+    ps = real_store.parameter_set("human", body_mass="73 kg")
+    q_h = total_liver_flow(ps.to_dict())
+    sbml = ps.to_sbml()
+    miswired = sbml.replace('receives_from="blood" drains_to="liver" flow="blood_flow_gut"',
+                            'receives_from="blood" drains_to="blood" flow="blood_flow_gut"'
+                            ).replace('receives_from="blood gut spleen"', 'receives_from="blood spleen"')
+    assert miswired.count('drains_to="liver"') == sbml.count('drains_to="liver"') - 1
+    doc, _, pool = build_drug_model(miswired, q_h, INFUSION)
+    result = run(doc, pool, [500.0])
+    assert result["blood_concentration"][-1] != pytest.approx(INFUSION / (q_h / 2), rel=STEADY_STATE)
+
+
 # ---- units ---------------------------------------------------------------------------------------------
 @pytest.mark.parametrize("unit", sorted(u for u, (_, parts) in SBML_UNITS.items() if parts))
 def test_sbml_unit_definitions_match_pint(unit):
