@@ -141,7 +141,7 @@ def parameter_set_to_sbml(ps, allow_gaps: bool = False) -> str:
     pool = next((c for c in ps.compartments if c not in wiring and any(c in e["receives_from"] for e in wiring.values())),
                 None)
     set_element = ET.Element(_q("parameter_set"), {
-        "species": ps.species, "life_stage": ps.life_stage, "sex": ps.sex or "", "layout": ps.layout.name,
+        "species": ps.species, "life_stage": ps.life_stage, "sex": ps.sex or "any", "layout": ps.layout.name,
         "fill": ps.fill, "units": ps.units, "volume_unit": volume_unit, "flow_unit": flow_unit,
         "time_unit": time_unit, "blood_pool": pool or "", "liver_flow": ps.liver_flow, "caution": CAUTION})
     for gap in ps.gaps:
@@ -175,7 +175,8 @@ def parameter_set_to_sbml(ps, allow_gaps: bool = False) -> str:
         c.setUnits(_unit_id(model, volume.unit))
         c.setSize(number(volume))
         entry = wiring.get(comp)
-        attrs = {"stored": " ".join(ps.layout.compartments.get(comp, []))}
+        stored = ps.layout.compartments.get(comp, [])
+        attrs = {"stored": " ".join(stored)} if stored else {}  # rest_of_body lumps no stored compartment
         if entry:
             attrs.update(role="organ", circuit="pulmonary" if entry["flow"] == "cardiac_output" else "systemic",
                          receives_from=" ".join(entry["receives_from"]), drains_to=entry["drains_to"],

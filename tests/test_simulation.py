@@ -104,10 +104,11 @@ def build_drug_model(sbml: str, intrinsic_clearance: float, infusion_rate: float
     _ok(rate_def.setId("mole_per_time"), "rate unit")
     mole = rate_def.createUnit()
     mole.setKind(libsbml.UNIT_KIND_MOLE), mole.setExponent(1), mole.setScale(0), mole.setMultiplier(1)
-    for u in time_def.getListOfUnits():
+    time_parts = ([(u.getKind(), u.getExponent(), u.getScale(), u.getMultiplier()) for u in time_def.getListOfUnits()]
+                  if time_def else [(libsbml.UnitKind_forName(model.getTimeUnits()), 1, 0, 1.0)])
+    for kind, exponent, scale, multiplier in time_parts:
         inv = rate_def.createUnit()
-        inv.setKind(u.getKind()), inv.setExponent(-u.getExponent()), inv.setScale(u.getScale())
-        inv.setMultiplier(u.getMultiplier())
+        inv.setKind(kind), inv.setExponent(-exponent), inv.setScale(scale), inv.setMultiplier(multiplier)
 
     def parameter(pid, value, units, formula=None):
         p = model.createParameter()
@@ -289,6 +290,16 @@ def test_time_unit_matches_the_flows(real_store):
         flow = bodyplan_element(model.getParameter("cardiac_output"), "value").get("unit")
         assert (ureg.Quantity(1, volume) / ureg.Quantity(1, flow)).to(time).magnitude == pytest.approx(1.0)
         assert SBML_UNITS[volume][0] in (model.getVolumeUnits(), "litre")
+
+
+def test_the_unit_check_catches_time_in_seconds(real_store):
+    """The check the end-to-end test relies on can fail: with time in seconds and flows per hour every
+    flow reaction's rate is in mol/h where the model expects mol/s."""
+    sbml = real_store.parameter_set("human", body_mass="73 kg").to_sbml()
+    assert 'timeUnits="hour"' in sbml
+    doc, _, _ = build_drug_model(sbml.replace('timeUnits="hour"', 'timeUnits="second"'), 1.0, 1.0)
+    problems = consistency_problems(doc)
+    assert problems and all("unit" in p.lower() for p in problems)
 
 
 def test_si_and_clinical_exports_are_the_same_physical_model(real_store):
