@@ -138,8 +138,8 @@ def parameter_set_to_sbml(ps, allow_gaps: bool = False) -> str:
     model.setExtentUnits("mole")
 
     wiring = {entry["compartment"]: entry for entry in circulation(ps.layout.compartments, REST)}
-    pool = next((c for c in ps.compartments if c not in wiring and any(c in e["receives_from"] for e in wiring.values())),
-                None)
+    arterial = {source for entry in wiring.values() for source in entry["receives_from"]}
+    pool = next((c for c in ps.compartments if c not in wiring and c in arterial), None)  # blood
     set_element = ET.Element(_q("parameter_set"), {
         "species": ps.species, "life_stage": ps.life_stage, "sex": ps.sex or "any", "layout": ps.layout.name,
         "fill": ps.fill, "units": ps.units, "volume_unit": volume_unit, "flow_unit": flow_unit,

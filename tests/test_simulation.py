@@ -14,6 +14,7 @@ constant infusion R the blood concentration is R / CL when the liver is the only
 
 from __future__ import annotations
 
+import json
 import math
 import sys
 import xml.etree.ElementTree as ET
@@ -216,7 +217,7 @@ def simulate_both(ps, times_per_slowest=(0.05, 0.5, 2.0, 40.0)):
     """The SBML run and the numpy run of one set at the same times (multiples of the slowest time
     constant), with CLint equal to the total liver blood flow (extraction ratio 0.5)."""
     sbml = ps.to_sbml()  # refuses a set with gaps (ParameterSetError)
-    data = ps.to_dict()
+    data = json.loads(ps.to_json())
     q_h = total_liver_flow(data)
     reference = flow_model.build(data, q_h, INFUSION)
     times = [f / reference.slowest_rate() for f in times_per_slowest]
@@ -328,7 +329,8 @@ def test_si_and_clinical_exports_are_the_same_physical_model(real_store):
     hours = np.array([0.1, 1.0, 5.0, 200.0])
     runs = {}
     for name, ps, flow_unit, time_unit in (("SI", si, "L/h", "hour"), ("clinical", clinical, "mL/min", "minute")):
-        doc, _, pool = build_drug_model(ps.to_sbml(), q_h.to(flow_unit).magnitude, rate.to(f"mol/{time_unit}").magnitude)
+        clint, infusion = q_h.to(flow_unit).magnitude, rate.to(f"mol/{time_unit}").magnitude
+        doc, _, pool = build_drug_model(ps.to_sbml(), clint, infusion)
         assert consistency_problems(doc) == [], name
         times = ureg.Quantity(hours, "hour").to(time_unit).magnitude
         runs[name] = run(doc, pool, times)
