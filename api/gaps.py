@@ -19,6 +19,7 @@ import pandas as pd
 
 from ..schema.model import SCALED_SHARES, Slot, slots, sub_parts
 
+VERIFIED_MAJORITY = 0.5  # share of a number's weight on verified rows for it to count as verified
 # How a coverage cell stands, from worst to best; the index is the cell's level in the heatmap.
 STATES = ["absent", "fraction only", "no uncertainty", "unverified", "verified", "several sources"]
 STATE_HELP = {
@@ -174,8 +175,12 @@ def readiness_table(store, layout, keys: list[tuple[str, str]]) -> tuple[pd.Data
         table = table[(table["compartment"] != "rest_of_body") & (table["origin"] != "not_applicable")]
         tables[(sp, st)] = table
         gap = table["origin"] == "gap"
+        # a number counts as verified when most of its weight rests on rows read in their source
+        verified = ~gap & (table["verified_share"].fillna(0) >= VERIFIED_MAJORITY)
         records.append({"species": sp, "life_stage": st, "readiness": round(float((~gap).mean()), 4),
-                        "available": int((~gap).sum()), "total": len(table),
+                        "readiness_verified": round(float(verified.mean()), 4),
+                        "available": int((~gap).sum()), "available_verified": int(verified.sum()),
+                        "available_unverified": int((~gap & ~verified).sum()), "total": len(table),
                         "gaps": _names(table[gap]), "supplied": _names(table[~gap])})
     return pd.DataFrame.from_records(records), tables
 

@@ -277,7 +277,7 @@ def _flow_cells(resolver: Resolver, layout: Layout, co: Cell, bw: float | None) 
             cells[comp] = Cell(None, "L/h", "not_applicable", method="blood carries the cardiac output")
             continue
         if is_pulmonary(parts):
-            cells[comp] = (replace(co, method="pulmonary flow equals cardiac output") if co.origin != "gap" else
+            cells[comp] = (replace(co, method=f"pulmonary flow equals cardiac output: {co.method}") if co.origin != "gap" else
                            Cell.gap("L/h", "lung flow equals cardiac output, which is a gap")
                            ).resting_on("cardiac_output", "body_mass")
             continue
@@ -481,6 +481,7 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
                                **options)
             ps.body_mass = borrowed
             return ps
+    resolver.target_mass = bw
     if bw is None:
         co = Cell.gap("L/h", "no body mass to scale cardiac output to")
     else:

@@ -16,12 +16,14 @@ from collections import defaultdict
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 
-from ..schema.model import FLUID_VOLUME, PARAMETERS, body_plan, routes, summable_parts
+from ..schema.model import FLUID_VOLUME, PARAMETERS, VESSEL_ORGAN, body_plan, routes, summable_parts
 from .pooling import Estimate, pool
 
 ROW_COLUMNS = ("source_id, row_id, compartment_id, quantity_id, normalisation, value_canonical, sd_canonical, "
                "n, subject_body_mass_kg, sex, strain, age, verified, file, line")
 SAME_SUBJECTS = ("source_id", "sex", "strain", "age")  # rows of one source describing the same animals
+PER_TISSUE = "blood_flow per kg tissue"  # the route of a flow given per mass of its tissue
+WITHIN_SPECIES_POINTS, WITHIN_SPECIES_SPAN = 3, 2.0  # subjects' masses needed to scale within a species
 SAME_BODY_WEIGHT = 0.02  # relative difference under which rows describe the requested body weight
 NAN = float("nan")
 
@@ -75,6 +77,7 @@ class Resolver:
     def __init__(self, store, species: str, life_stage: str = "adult", sex: str | None = None,
                  verified_only: bool = False):
         self.store, self.species, self.life_stage, self.sex = store, species, life_stage, sex
+        self.target_mass: float | None = None  # the set's body mass, for within-species scaling
         sql = (f"SELECT {ROW_COLUMNS} FROM curated_values WHERE species_id = ? AND life_stage_id = ? "
                "AND value_canonical IS NOT NULL" + (" AND verified = 1" if verified_only else ""))
         params = [species, life_stage]
@@ -184,7 +187,7 @@ class Resolver:
             return _gap(f"{compartment} masses lack the subjects' body mass")
         by_mass = [r for r in rows if not self._is_volume(r["_route"])]
         notes = [density_note] if by_mass else []
-        resolved = self._resolved(rows, notes)
+        resolved = self._over_body_mass(rows, notes) or self._resolved(rows, notes)
         if density_sources and notes:
             resolved.estimate = replace(resolved.estimate, sources=tuple(
                 dict.fromkeys(resolved.estimate.sources + tuple(density_sources))))
@@ -270,6 +273,24 @@ class Resolver:
         self._co_cache[body_mass] = result
         return result
 
+    def _over_body_mass(self, rows: list[dict], notes: list[str]) -> Resolved | None:
+        """Per-kg values of subjects spanning a range of body masses (a 25 kg grower and a 110 kg finisher
+        pig): the species' own power law of per-kg value on body mass, at the set's body mass."""
+        if self.target_mass is None:
+            return None
+        masses = [r["subject_body_mass_kg"] for r in rows]
+        if None in masses or len(set(masses)) < WITHIN_SPECIES_POINTS or max(masses) / min(masses) < WITHIN_SPECIES_SPAN:
+            return None
+        from .allometry import fit_power_law
+
+        fit = fit_power_law(masses, [r["_value"] for r in rows], [r["source_id"] for r in rows])
+        value, low, high = fit.predict(self.target_mass)
+        est = Estimate(value, None, None, low, high,
+                       f"within-species allometry of the per-kg value over {len(rows)} rows of "
+                       f"{min(masses):.3g}–{max(masses):.3g} kg subjects: {fit.a:.3g}·BW^{fit.b:.3f} "
+                       "(95 % prediction interval)", len(rows), tuple(dict.fromkeys(r["source_id"] for r in rows)))
+        return Resolved(est, rows, notes, verified_share=sum(bool(r["verified"]) for r in rows) / len(rows))
+
     def _within_species_fit(self, absolute: list[dict], body_mass: float) -> Resolved:
         from .allometry import fit_power_law
 
@@ -286,10 +307,11 @@ class Resolver:
     def flow_fraction(self, compartment: str) -> Resolved:
         """Blood flow of one stored compartment as a fraction of cardiac output. An absolute flow is
         divided by the cardiac output of the same source and subjects when the source gives one, else
-        by the species' cardiac output at the subjects' body mass (said on the row)."""
-        preference = list(routes("blood_flow"))
+        by the species' cardiac output at the subjects' body mass; a flow per kg of tissue is first
+        multiplied by the species' mass of that tissue (each said on the row)."""
+        preference = [*routes("blood_flow"), PER_TISSUE]
         candidates = []
-        for quantity in preference:
+        for quantity in routes("blood_flow"):
             for r in self.rows(quantity, compartment):
                 if self._share_of.get(quantity) == "cardiac_output":
                     candidates.append(self._routed(r, quantity, 1.0))
@@ -297,6 +319,10 @@ class Resolver:
                     co, how = self._cardiac_output_for(r)
                     if co is not None:
                         candidates.append(dict(self._routed(r, quantity, 1.0 / co), _over=how))
+                elif r["normalisation"] == "tissue_mass":
+                    factor, how = self._per_tissue_factor(r, compartment)
+                    if factor is not None:
+                        candidates.append(dict(self._routed(r, PER_TISSUE, factor), _over=how))
         if not candidates:
             if any(r["normalisation"] == "none" for q in preference if self._share_of.get(q) is None
                    for r in self.rows(q, compartment)):
@@ -306,6 +332,21 @@ class Resolver:
         rows = _one_route_per_source(candidates, preference)
         notes = sorted({r["_over"] for r in rows if "_over" in r})
         return self._resolved(rows, notes)
+
+    def _per_tissue_factor(self, row: dict, compartment: str) -> tuple[float | None, str]:
+        """What turns a flow per kg of tissue into a share of cardiac output: the species' tissue mass per
+        kg body mass (a vessel's tissue is its organ) over its cardiac output per kg at the subjects' mass."""
+        organ = VESSEL_ORGAN.get(compartment, compartment)
+        tissue = self.volume_per_kg(organ)
+        mass = self.subject_mass(row)
+        if not tissue.ok or math.isnan(mass):
+            return None, ""
+        co = self.cardiac_output(mass)
+        if not co.ok:
+            return None, ""
+        kg_tissue = tissue.estimate.value * self.density(organ)[0]  # per kg body mass
+        return kg_tissue * mass / co.estimate.value, (
+            f"flows per kg of tissue × the species' {organ} mass over its cardiac output at the subjects' body mass")
 
     def _cardiac_output_for(self, row: dict) -> tuple[float | None, str]:
         """The cardiac output (L/h) an absolute flow row is a share of."""

@@ -61,6 +61,11 @@ def trace(store, species: str, quantity: str, compartment: str | None = None, *,
     if frame.empty:
         result.note = (f"no curated rows for {species} {life_stage} {quantity}"
                        f"{' in ' + compartment if compartment else ''}: a gap")
+        elsewhere = store.values(species=species, quantity=quantity, compartment=compartment)
+        if not elsewhere.empty:
+            counts = elsewhere.groupby("life_stage").size()
+            result.note += ("; rows exist at other stages (" + ", ".join(f"{n} at {s}" for s, n in counts.items())
+                            + "): trace with --life-stage, or ask parameter sets for the stage fallback")
         return result
     parameter = parameter_of(quantity)
     if parameter is None:

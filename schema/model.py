@@ -30,6 +30,7 @@ FLUID_VOLUME = {"blood": "blood_volume", "plasma": "plasma_volume"}
 # Vessels carry part of an organ's flow; they are not extra tissue of the organ they belong to.
 VESSELS_OF_LIVER = ("hepatic_artery", "portal_vein")  # the liver's inflows; their rows feed the liver's flow
 VESSELS = frozenset(VESSELS_OF_LIVER)
+VESSEL_ORGAN = {"hepatic_artery": LIVER, "portal_vein": LIVER}  # the tissue a vessel's flow per kg is per
 # One-side organs (left_kidney …) are parts of the pair (vocab part_of); the pair is their sum only
 # when both sides are given, so a single side never passes for the pair.
 SIDE_PREFIXES = ("left_", "right_")

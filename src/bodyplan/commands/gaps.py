@@ -46,11 +46,14 @@ def gaps_cmd(species, stage, layout, fmt, out, store_path):
     elif fmt == "csv":
         emit(report.coverage, fmt)
     else:
-        ranked = report.under_studied.assign(readiness=lambda f: (f["readiness"] * 100).round(0).astype(int))
-        emit(ranked[["rank", "species", "life_stage", "readiness", "available", "total", "covered_slots",
-                     "waits_on"]]
-             .rename(columns={"readiness": "readiness %", "covered_slots": "parameters with data",
-                              "waits_on": "to curate"}),
+        ranked = report.under_studied.assign(readiness=lambda f: (f["readiness"] * 100).round(0).astype(int),
+                                             readiness_verified=lambda f: (f["readiness_verified"] * 100).round(0)
+                                             .astype(int))
+        emit(ranked[["rank", "species", "life_stage", "readiness", "readiness_verified", "available_verified",
+                     "available_unverified", "total", "covered_slots", "waits_on"]]
+             .rename(columns={"readiness": "readiness %", "readiness_verified": "verified %",
+                              "available_verified": "verified", "available_unverified": "unverified",
+                              "covered_slots": "slots with data", "waits_on": "to curate"}),
              fmt, title=f"Readiness ({report.layout} layout), least ready first")
         emit(report.most_wanted[["slot", "species_made_ready", "gaps_closed_alone", "species_needing"]]
              .head(15), fmt, title="Most wanted: curating this closes the most gaps")

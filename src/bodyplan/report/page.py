@@ -63,6 +63,7 @@ def gap_report_html(report: GapReport, png: bytes | None = None, store_info: dic
     png = write_heatmap(report) if png is None else png
     image = base64.b64encode(png).decode("ascii")
     ranked = report.under_studied.assign(readiness_pct=lambda f: (f["readiness"] * 100).round(0).astype(int),
+                                         verified_pct=lambda f: (f["readiness_verified"] * 100).round(0).astype(int),
                                          missing=lambda f: [_missing(r) for r in f.itertuples()])
     stage = "all stages" if report.life_stage == "all" else f"life stage {report.life_stage}"
     covered = report.coverage[report.coverage["n_values"] > 0].sort_values(["species", "life_stage",
@@ -79,17 +80,19 @@ def gap_report_html(report: GapReport, png: bytes | None = None, store_info: dic
         f"Store {escape(str(info.get('store', '')))}, content hash {escape(str(info.get('content_hash', ''))[:16])}."
         " Readiness is the share of the layout's parameter set (body weight, cardiac output, GFR, hematocrit, "
         "volume and blood flow per compartment; rest_of_body left out) that the store supplies without "
-        "filling.</p>",
+        "filling; verified % the share whose weight rests mostly on rows read in their source text.</p>",
         "<h2>Coverage</h2>",
         f'<img id="heatmap" alt="coverage heatmap: species by parameter, coloured by state" '
         f'src="data:image/png;base64,{image}">',
         _table(states, {"state": "state", "meaning": "meaning"}, table_id="states"),
         "<h2>Under-studied species (least ready first)</h2>",
         _table(ranked, {"rank": "rank", "species": "species", "life_stage": "stage",
-                        "readiness_pct": "readiness %", "available": "available", "total": "of",
-                        "covered_slots": "parameters with any data", "missing": "gaps",
+                        "readiness_pct": "readiness %", "verified_pct": "verified %", "available": "available",
+                        "available_unverified": "of them unverified", "total": "of",
+                        "covered_slots": "slots with any data", "missing": "gaps",
                         "waits_on": "to curate (see Most wanted)"},
-               numeric={"rank", "readiness_pct", "available", "total", "covered_slots"},
+               numeric={"rank", "readiness_pct", "verified_pct", "available", "available_unverified", "total",
+                        "covered_slots"},
                table_id="under-studied"),
         "<h2>Most wanted</h2>",
         '<p class="note">What each gap waits on: its own parameter when nothing is stored for it, body mass '

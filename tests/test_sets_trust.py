@@ -1,0 +1,131 @@
+"""Parameter sets a modeller can trust, on the bundled store: flows within their source, masses that add up,
+stage fallback on request, honest fills, verification visible, the circulation as data, one precision."""
+
+from __future__ import annotations
+
+import io
+import json
+import math
+
+import pandas as pd
+import pytest
+
+import bodyplan
+from bodyplan.api.parameters import resolve_parameter
+from bodyplan.api.trace import trace
+from bodyplan.schema.model import PORTAL_ORGANS
+
+
+@pytest.fixture(scope="module")
+def store(bundled_store):
+    return bodyplan.open_store(bundled_store)
+
+
+def test_absolute_flows_are_shares_of_their_own_source_cardiac_output(store):
+    """Davies & Morris (1993) give the dog's heart flow (54 mL/min) beside the same dog's cardiac output
+    (1200 mL/min): the share is 54/1200, not 54 over the species' pooled cardiac output."""
+    resolved = resolve_parameter(store, "dog", "heart", "blood_flow")
+    [row] = [r for r in resolved.rows if r["source_id"] == "davies1993"]
+    assert row["_value"] == pytest.approx(54 / 1200, rel=1e-12)
+    assert any("own source's cardiac output" in note for note in resolved.notes)
+
+
+def test_masses_add_up_to_the_body_mass_through_densities(store):
+    ps = store.parameter_set("human", sex="male", body_mass="73 kg")
+    masses = [ps.volumes[c].mass for c in ps.compartments]
+    assert None not in masses
+    assert sum(masses) == pytest.approx(73.0, rel=1e-12)
+    rest = ps.volumes["rest_of_body"]
+    assert rest.value == pytest.approx(rest.mass)  # the remainder at 1 kg/L, stated in its method
+    assert "1 kg/L" in rest.method
+    check = next(c for c in ps.checks if c["check"] == "masses_within_body_mass")
+    assert check["status"] == "pass" and "73 kg" in check["detail"]
+    # densities above 1 kg/L make the named volumes smaller than their masses
+    liver = ps.volumes["liver"]
+    assert liver.mass > liver.value
+
+
+def test_stage_fallback_only_on_request_and_named(store):
+    plain = store.parameter_set("cattle", life_stage="lactating", body_mass="600 kg")
+    co = plain.cardiac_output
+    assert co.origin == "gap" and "rows exist at other stages" in co.reason and "adult" in co.reason
+    fallen = store.parameter_set("cattle", life_stage="lactating", body_mass="600 kg", stage_fallback=True)
+    assert fallen.cardiac_output.origin == "fallback"
+    assert fallen.cardiac_output.method.startswith("from adult rows (stage fallback)")
+    assert len(fallen.gaps) < len(plain.gaps)
+    adult = store.parameter_set("cattle", body_mass="600 kg")
+    assert fallen.cardiac_output.value == pytest.approx(adult.cardiac_output.value)
+    # without a body mass of its own stage, the body mass falls back too, and says so
+    typical = store.parameter_set("cattle", life_stage="lactating", stage_fallback=True)
+    assert typical.body_mass.origin == "fallback" and typical.body_mass.value > 100
+
+
+def test_trace_points_to_rows_at_other_stages(store):
+    result = trace(store, "pig", "cardiac_output")
+    if result.rows.empty:
+        assert "juvenile" in result.note
+
+
+def test_fills_come_from_the_same_class_and_are_of_use(store):
+    chicken = store.parameter_set("chicken", life_stage="juvenile", fill="allometric")
+    for comp, parameter, cell in chicken.cells():
+        if cell.origin == "allometric":
+            assert "bird species" in cell.method, (comp, parameter)
+            assert cell.high / cell.low <= 10
+        if cell.origin == "gap" and "allometric fill refused" in cell.reason:
+            assert "bird" in cell.reason or "prediction interval" in cell.reason or "range" in cell.reason
+    for species, bw in (("cattle", "600 kg"), ("dog", "12 kg"), ("sheep", "60 kg")):
+        for comp, parameter, cell in store.parameter_set(species, body_mass=bw, fill="allometric").cells():
+            if cell.origin == "allometric":
+                assert "mammal species" in cell.method and cell.high / cell.low <= 10, (species, comp, parameter)
+
+
+def test_verification_is_carried_by_every_number(store):
+    ps = store.parameter_set("dog", body_mass="12 kg")
+    for comp, parameter, cell in ps.cells():
+        if cell.origin not in ("gap", "not_applicable", "given"):
+            assert cell.verified_share is not None and 0 <= cell.verified_share <= 1, (comp, parameter)
+    frame = pd.read_csv(io.StringIO(ps.to_csv()))
+    assert "verified_share" in frame.columns
+    data = json.loads(ps.to_json())
+    assert "verified_share" in data["cardiac_output"]
+    strict = store.parameter_set("dog", body_mass="12 kg", verified_only=True)
+    for comp, parameter, cell in strict.cells():
+        if cell.origin in ("measured", "pooled", "scaled") and comp != "rest_of_body":
+            assert cell.verified_share == pytest.approx(1.0), (comp, parameter)
+
+
+def test_a_body_mass_far_outside_the_studied_subjects_is_flagged(store):
+    far = store.parameter_set("dog", body_mass="400 kg")
+    check = next(c for c in far.checks if c["check"] == "body_mass_within_studied_range")
+    assert check["status"] == "warn"
+    near = store.parameter_set("dog", body_mass="12 kg")
+    assert next(c for c in near.checks if c["check"] == "body_mass_within_studied_range")["status"] == "pass"
+    assert near.body_mass.origin == "given"
+
+
+def test_one_precision_in_every_data_format(store):
+    ps = store.parameter_set("rat", body_mass="0.25 kg")
+    data = json.loads(ps.to_json())
+    frame = pd.read_csv(io.StringIO(ps.to_csv()))
+    liver = frame[(frame["compartment"] == "liver") & (frame["parameter"] == "volume")]["value"].item()
+    assert next(c for c in data["compartments"] if c["compartment"] == "liver")["volume"]["value"] == liver
+    assert liver == ps.volumes["liver"].value
+
+
+@pytest.mark.parametrize("species, layout", [("human", "whole_body"), ("human", "rich_slow")])
+def test_circulation_is_data_and_returns_the_cardiac_output(store, species, layout):
+    ps = store.parameter_set(species, body_mass="73 kg", layout=layout)
+    data = json.loads(ps.to_json())
+    flows = {c["compartment"]: c["blood_flow"]["value"] for c in data["compartments"]}
+    routes = {c["compartment"]: c for c in data["circulation"]}
+    liver = next(c for c in ps.layout.compartments if "liver" in ps.layout.compartments[c])
+    to_liver = [c for c, r in routes.items() if r["drains_to"] == liver]
+    assert sorted(routes[liver]["receives_from"][1:]) == sorted(to_liver)
+    for comp in to_liver:
+        assert set(ps.layout.compartments[comp]) <= PORTAL_ORGANS
+    systemic = [c for c, r in routes.items() if r["flow"] == "blood_flow"]
+    venous_return = sum(flows[c] for c in systemic if routes[c]["drains_to"] == "blood") + \
+        sum(flows[c] for c in to_liver)
+    assert venous_return == pytest.approx(data["cardiac_output"]["value"], rel=1e-9)
+    assert all(math.isfinite(flows[c]) for c in systemic)
