@@ -214,10 +214,11 @@ class ParameterSet:
         frame = self.table.assign(species=self.species, life_stage=self.life_stage)
         return frame.to_csv(path, index=False, lineterminator="\n")
 
-    def to_sbml(self) -> str:
+    def to_sbml(self, allow_gaps: bool = False) -> str:
+        """SBML Level 3; a set with gaps is refused unless ``allow_gaps`` (then each gap is NaN, marked)."""
         from .sbml import parameter_set_to_sbml
 
-        return parameter_set_to_sbml(self)
+        return parameter_set_to_sbml(self, allow_gaps=allow_gaps)
 
 
 def _flat(cell: Cell) -> dict:
