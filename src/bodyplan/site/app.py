@@ -58,20 +58,23 @@ def render_store_pages(store: str | Path) -> dict:
     return render_pages(open_store(store))
 
 
-def make_datasette(store: str | Path, *, allow_sql: bool = False, pages: str = "now"):
+def make_datasette(store: str | Path, *, allow_sql: bool = False, pages: str = "now", limits: dict | None = None):
     """A Datasette over ``store`` (immutable) with generated metadata, the plugin and the templates.
 
     ``pages``: "now" renders the modeller pages before returning, "background" in a thread (they
-    answer 503 until ready), "none" leaves them out.
+    answer 503 until ready), "none" leaves them out. ``limits`` overrides the plugin's bounds on arbitrary
+    SQL (sql_workers, sql_queue, sql_max_mb).
     """
     from datasette.app import Datasette
     from datasette.database import Database
 
-    from .plugin import Pages
+    from .plugin import PLUGIN, Pages
 
     _register_plugin()
     store = Path(store).resolve()
-    ds = Datasette(memory=False, metadata=build_metadata(store, allow_sql=allow_sql), settings=settings(allow_sql),
+    metadata = build_metadata(store, allow_sql=allow_sql)
+    metadata["plugins"][PLUGIN].update(limits or {})
+    ds = Datasette(memory=False, metadata=metadata, settings=settings(allow_sql),
                    template_dir=str(templates_dir()))
     ds.remove_database("_memory")  # added when no file is given; the store is added under a fixed name
     ds.add_database(Database(ds, path=str(store), is_mutable=False), name=DATABASE)

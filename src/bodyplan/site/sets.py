@@ -152,7 +152,8 @@ class SiteData:
 
     def _cell(self, cell: dict, rows: list[dict]) -> dict:
         verified = sum(1 for r in rows if r["verified"])
-        mark = "" if not rows else "✓" if verified == len(rows) else f"{verified}/{len(rows)} ✓" if verified else "unverified"
+        mark = "" if not rows else "✓ verified" if verified == len(rows) else \
+            f"{verified} of {len(rows)} verified" if verified else "unverified"
         return {"text": number_text(cell), "unit": cell.get("unit", ""), "origin": _origin(cell),
                 "sources": list(dict.fromkeys(cell.get("sources") or [])), "method": cell.get("method", ""),
                 "reason": cell.get("reason", ""), "interval_kind": cell.get("interval_kind", ""),
