@@ -179,6 +179,12 @@ DEBUG_PATHS = ("/-/threads", "/-/actor", "/-/messages", "/-/permissions", "/-/al
 FILTER_OPS = {"exact", "not", "contains", "endswith", "startswith", "gt", "gte", "lt", "lte", "like", "notlike",
               "glob", "in", "notin", "arraycontains", "arraynotcontains", "date", "isnull", "notnull", "isblank",
               "notblank"}
+# The values table's HTML page selects only the columns it shows and those the value text is made of: datasette
+# renders every selected cell through the plugin hooks, and half the columns were half the page's cost.
+# (Ask for others with ?_col=NAME; JSON and CSV keep every column.)
+PAGE_COLUMNS = {"curated_values": ("value", "unit", "uncertainty", "spread", "low", "high", "n", "missing_reason",
+                                   "species_id", "life_stage_id", "sex", "compartment_id", "quantity_id",
+                                   "source_id", "locator", "verified", "basis")}
 COLUMN_ARGS = ("_sort", "_sort_desc", "_facet", "_facet_array", "_facet_date", "_col", "_nocol", "_label")
 # zeroblob/randomblob make huge values, fts3_tokenizer hands out native pointers, load_extension loads code;
 # printf/format loop in C over a width the time limit cannot interrupt (%.*c with 2e9 runs for seconds)
@@ -357,6 +363,9 @@ def asgi_wrapper(datasette):
                 problem = unknown_column(columns, args) if columns is not None else None
                 if problem:
                     return await _answer(send, 400, problem)
+                if parts[2] in PAGE_COLUMNS and not any(k in ("_col", "_nocol") for k, _ in args):
+                    extra = "&".join(f"_col={c}" for c in PAGE_COLUMNS[parts[2]]).encode()
+                    scope = dict(scope, query_string=b"&".join(q for q in (scope["query_string"], extra) if q))
             sql, params = _sql_args(args)
             if sql and path.split(".", 1)[0] == db_path:
                 if not config.get("allow_sql"):
