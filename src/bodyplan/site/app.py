@@ -23,6 +23,7 @@ SETTINGS = {
     "facet_time_limit_ms": 300,
     "max_returned_rows": 1000,
     "suggest_facets": False,
+    "default_facet_size": 10,  # each facet value shown costs a toggle link to build; the rest are one click away
     "allow_download": True,  # the whole store is open data; the download is the immutable file
     "default_cache_ttl": 3600,
     "default_allow_sql": False,

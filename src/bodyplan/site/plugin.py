@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import asyncio
 import importlib
+import json
 import sqlite3
 import threading
 import time
@@ -242,9 +243,19 @@ def _columns(datasette) -> dict[str, set[str]]:
     return cached
 
 
-def unknown_column(columns: set[str], args: list[tuple[str, str]]) -> str | None:
+def unknown_column(columns: set[str], args: list[tuple[str, str]], tables: dict | None = None) -> str | None:
     """A message naming the first sort, facet or filter argument that names no column of the table."""
     for key, value in args:
+        if key == "_through":  # {"table": ..., "column": ..., "value": ...}: a column of another table
+            try:
+                through = json.loads(value)
+                ok = set(through) == {"table", "column", "value"} and through["column"] in (tables or {}).get(
+                    through["table"], ())
+            except (ValueError, TypeError):
+                ok = False
+            if not ok:
+                return ('_through: expected JSON {"table": T, "column": C, "value": V} naming a table and one of '
+                        "its columns")
         if key in COLUMN_ARGS and value and value not in columns:
             return f"{key}={value}: the table has no column {value!r}; columns: {', '.join(sorted(columns - {'rowid'}))}"
         if key.startswith("_"):
@@ -359,8 +370,9 @@ def asgi_wrapper(datasette):
                     return await _page(pages, path, args, send)
             parts = path.split("/")
             if len(parts) == 3 and parts[1] == DATABASE:  # /bodyplan/<table>[.<format>]
-                columns = _columns(datasette).get(tilde_decode(parts[2].rsplit(".", 1)[0]))
-                problem = unknown_column(columns, args) if columns is not None else None
+                tables = _columns(datasette)
+                columns = tables.get(tilde_decode(parts[2].rsplit(".", 1)[0]))
+                problem = unknown_column(columns, args, tables) if columns is not None else None
                 if problem:
                     return await _answer(send, 400, problem)
                 if parts[2] in PAGE_COLUMNS and not any(k in ("_col", "_nocol") for k, _ in args):
