@@ -16,7 +16,9 @@ from .metadata import DATABASE, build_metadata
 # answer every question a modeller asks, and a SQL box open to anyone lets one visitor starve the site.
 # `serve --allow-sql` turns it on for local use, behind the plugin's authorizer, caps and pool.
 # Facet suggestions are off: they cost a query per column on every table page. Pages hold 50 rows.
-# num_sql_threads: page queries keep threads of their own while arbitrary SQL runs on its own pool.
+# num_sql_threads 0: the page queries of this small immutable store take well under a millisecond, less
+# than handing each to a thread; with --allow-sql a query may run up to the time limit, so it runs on
+# threads (after its trial on the plugin's own pool) and never on the loop that serves the pages.
 SETTINGS = {
     "default_page_size": 50,
     "sql_time_limit_ms": 1000,
@@ -27,12 +29,12 @@ SETTINGS = {
     "allow_download": True,  # the whole store is open data; the download is the immutable file
     "default_cache_ttl": 3600,
     "default_allow_sql": False,
-    "num_sql_threads": 3,
+    "num_sql_threads": 0,
 }
 
 
 def settings(allow_sql: bool = False) -> dict:
-    return dict(SETTINGS, default_allow_sql=allow_sql)
+    return dict(SETTINGS, default_allow_sql=allow_sql, num_sql_threads=3 if allow_sql else 0)
 
 
 def templates_dir() -> Path:
