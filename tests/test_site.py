@@ -516,3 +516,29 @@ def test_unknown_sort_or_filter_answers_400_with_a_message(store, query, column)
                                   "/-/messages", "/-/actor.json", "/-/databases.json"])
 def test_debug_endpoints_are_off(store, path):
     assert get(make_datasette(store, pages="none"), path).status_code == 404
+
+
+def test_table_pages_stay_within_their_query_budget(store):
+    """A page's cost is counted in SQL statements, not timed: the values table with its facets, a filtered
+    view, its JSON and a row page each run a bounded number of queries (the budget of this site)."""
+    from datasette.tracer import capture_traces
+
+    budget = {"/bodyplan/curated_values": 20, "/bodyplan/curated_values?species_id=dog&quantity_id=gfr": 20,
+              "/bodyplan/curated_values.json?_size=100": 20, "/bodyplan/curated_values/1": 12}
+    ds = make_datasette(store, pages="none")
+
+    async def run():
+        await ds.invoke_startup()
+        counts = {}
+        for path in budget:
+            await ds.client.get(path)  # schema introspection happens once, on first use
+            traces: list = []
+            with capture_traces(traces):
+                response = await ds.client.get(path + ("&" if "?" in path else "?") + "_miss=1")
+            assert response.status_code == 200, path
+            counts[path] = len(traces)
+        return counts
+
+    counts = asyncio.run(run())
+    assert all(counts[p] <= budget[p] for p in budget), counts
+    assert len(FACETS) == 3
