@@ -397,6 +397,8 @@ async def _page(pages: Pages, path: str, args, send):
     if not pages.ready.is_set():
         return await _answer(send, 503, "The modeller pages are being rendered; try again in a few seconds.",
                              {"Retry-After": "5"})
+    if pages.error is not None:  # the tables still work; the server's log has the cause too
+        return await _answer(send, 503, f"The modeller pages could not be rendered: {pages.error}")
     hit = pages.files.get(path.rstrip("/") or path)
     if hit is None:
         return await _answer(send, 404, f"No page {path}; start at /species or /coverage.")
