@@ -10,14 +10,17 @@ from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
+from hypothesis import given
+from hypothesis import strategies as st
 
 from bodyplan import CAUTION
 from bodyplan.site.app import SETTINGS, make_datasette, plugin_file, write_site
 from bodyplan.site.metadata import FACETS, unit_in_words
-from bodyplan.site.plugin import describe_value
+from bodyplan.site.plugin import FILTER_OPS, describe_value, unknown_column
 from bodyplan.site.queries import QUERIES
 
 FIXTURE_TREE = Path(__file__).parent / "data" / "site"  # invented values, for when the bundled data fails
+COLUMNS = {"id", "species_id", "value", "unit", "rowid"}  # a table's columns as the plugin reads them
 
 
 def build_site_store(path: Path) -> Path:
@@ -247,7 +250,7 @@ def test_serve_listens_on_loopback_by_default():
     from bodyplan.cli import cli
 
     result = CliRunner().invoke(cli, ["serve", "--help"])
-    assert result.exit_code == 0 and "127.0.0.1" in result.output
+    assert result.exit_code == 0 and "127.0.0.1" in result.output and "--allow-sql" in result.output
 
 
 # --- site folder --------------------------------------------------------------------------------------
@@ -542,3 +545,22 @@ def test_table_pages_stay_within_their_query_budget(store):
     counts = asyncio.run(run())
     assert all(counts[p] <= budget[p] for p in budget), counts
     assert len(FACETS) == 3
+
+
+@given(st.sampled_from(sorted(COLUMNS)), st.sampled_from(["", *sorted(FILTER_OPS)]),
+       st.text(alphabet="abcdefghijklmnopqrstuvwxyz_", min_size=1, max_size=12))
+def test_known_columns_pass_and_unknown_ones_are_named(column, op, name):
+    """Every column with every filter passes; any other name is refused with that name in the message."""
+    key = f"{column}__{op}" if op else column
+    assert unknown_column(COLUMNS, [(key, "1"), ("_sort", column), ("_facet", column), ("_size", "5")]) is None
+    if name not in COLUMNS and not name.startswith("_"):
+        assert repr(name) in unknown_column(COLUMNS, [(name, "1")])
+        assert repr(name) in unknown_column(COLUMNS, [("_sort_desc", name)])
+    if op:
+        assert unknown_column(COLUMNS, [(f"{column}__{name}x", "1")]) is not None  # no filter ends in x
+
+
+def test_filter_operators_are_datasettes():
+    from datasette.filters import Filters
+
+    assert FILTER_OPS == {f.key for f in Filters._filters}

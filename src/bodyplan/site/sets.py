@@ -17,21 +17,12 @@ def _origin(cell: dict) -> str:
 
 
 def number_text(cell: dict) -> str:
-    """'0.3744 [0.369–0.38]' or '4.7 ± 0.3' as `bodyplan params` prints it; 'gap' for a gap."""
+    """'0.3744 [0.369–0.38]' or '4.7 ± 0.3', formatted by `bodyplan params` itself; 'gap' for a gap."""
+    from ..commands.params import _fmt
+
     if _origin(cell) == "gap":
         return "gap"
-    value = cell.get("value")
-    if value is None:
-        return "—"
-    text = f"{value:.4g}"
-    sd, se = cell.get("sd"), cell.get("se")
-    spread = sd if sd is not None else se
-    if spread is not None:
-        text += f" ± {spread:.2g}{'' if sd is not None else ' (se)'}"
-    interval = cell.get("interval")
-    if interval and spread is None and None not in interval:
-        text += f" [{interval[0]:.3g}–{interval[1]:.3g}]"
-    return text
+    return _fmt(cell.get("value"), cell.get("sd"), cell.get("se"), *(cell.get("interval") or (None, None)))
 
 
 def state_colours() -> dict[str, str]:
