@@ -15,12 +15,13 @@ from .metadata import DATABASE, build_metadata
 # Arbitrary SQL is off (datasette's default_allow_sql): the tables, named queries and modeller pages
 # answer every question a modeller asks, and a SQL box open to anyone lets one visitor starve the site.
 # `serve --allow-sql` turns it on for local use, behind the plugin's authorizer, caps and pool.
-# Facet suggestions are off: they cost a query per column on every table page. Pages hold 50 rows.
+# Facet suggestions are off: they cost a query per column on every table page. Pages hold 30 rows: each
+# row's cells are rendered through the plugin hooks, the larger part of a table page's cost.
 # num_sql_threads 0: the page queries of this small immutable store take well under a millisecond, less
 # than handing each to a thread; with --allow-sql a query may run up to the time limit, so it runs on
 # threads (after its trial on the plugin's own pool) and never on the loop that serves the pages.
 SETTINGS = {
-    "default_page_size": 50,
+    "default_page_size": 30,
     "sql_time_limit_ms": 1000,
     "facet_time_limit_ms": 300,
     "max_returned_rows": 1000,

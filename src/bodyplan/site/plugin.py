@@ -90,23 +90,52 @@ def _link(datasette, database, table, key, text=None) -> Markup:
 
 @hookimpl
 def render_cell(row, value, column, table, database, datasette):
-    keys = row.keys() if hasattr(row, "keys") else []
-    if column == "value" and "uncertainty" in keys:  # curated_values and the named queries
-        return describe_value(row)
-    if column == "value_canonical" and "unit_canonical" in keys:
-        return describe_canonical(row)
-    if column == "verified" and "basis" in keys and value in (0, 1):
-        return _verified(value)
-    if column in ("unit", "unit_canonical") and "uncertainty" in keys and value:
-        words = (datasette.plugin_config(PLUGIN) or {}).get("unit_words", {}).get(value)
-        return f"{value} ({words})" if words and words != value else None
-    if column == "doi" and table == "sources" and value:
-        return Markup(f'<a href="https://doi.org/{escape(value)}">doi:{escape(value)}</a>')
+    # called for every cell of every page: decide on the column first, touch the row only when needed
+    if column in CELL_COLUMNS:
+        keys = row.keys() if hasattr(row, "keys") else ()
+        if column == "value" and table == "curated_values" and "id" in keys:  # the table page: made at start
+            return _described(datasette).get(row["id"])
+        if column == "value" and "uncertainty" in keys:  # the named queries
+            return describe_value(row)
+        if column == "value_canonical" and "unit_canonical" in keys:
+            return describe_canonical(row)
+        if column == "verified" and "basis" in keys and value in (0, 1):
+            return _verified(value)
+        if column in ("unit", "unit_canonical") and "uncertainty" in keys and value:
+            words = _config(datasette).get("unit_words", {}).get(value)
+            return f"{value} ({words})" if words and words != value else None
+        if column == "doi" and table == "sources" and value:
+            return Markup(f'<a href="https://doi.org/{escape(value)}">doi:{escape(value)}</a>')
     if table == "curated_values" and column in LINKED and isinstance(value, str):  # the row page
         return _link(datasette, database, LINKED[column], value)
     if table is None and column in QUERY_LINKS and value is not None:
         return _link(datasette, database, QUERY_LINKS[column], value)
     return None
+
+
+CELL_COLUMNS = {"value", "value_canonical", "verified", "unit", "unit_canonical", "doi"}
+
+
+def _described(datasette) -> dict:
+    """Every curated value's text by row id, made once (the store is immutable)."""
+    described = getattr(datasette, "bodyplan_described", None)
+    if described is None:
+        conn = sqlite3.connect(f"file:{datasette.get_database(DATABASE).path}?mode=ro", uri=True)
+        conn.row_factory = sqlite3.Row
+        try:
+            described = {r["id"]: describe_value(r) for r in conn.execute("SELECT * FROM curated_values")}
+        finally:
+            conn.close()
+        datasette.bodyplan_described = described
+    return described
+
+
+def _config(datasette) -> dict:
+    """The plugin's configuration, read once: datasette resolves secrets through all of it on every read."""
+    config = getattr(datasette, "bodyplan_config", None)
+    if config is None:
+        config = datasette.bodyplan_config = datasette.plugin_config(PLUGIN) or {}
+    return config
 
 
 class PageCache:
@@ -166,7 +195,7 @@ class Pages:
 def _pages(datasette) -> Pages | None:
     pages = getattr(datasette, "bodyplan_pages", None)
     if pages is None:
-        folder = (datasette.plugin_config(PLUGIN) or {}).get("pages_dir")
+        folder = _config(datasette).get("pages_dir")
         if folder and datasette.config_dir is not None:
             pages = Pages.from_folder(Path(datasette.config_dir) / folder)
             datasette.bodyplan_pages = pages
@@ -181,11 +210,11 @@ DEBUG_PATHS = ("/-/threads", "/-/actor", "/-/messages", "/-/permissions", "/-/al
 FILTER_OPS = {"exact", "not", "contains", "endswith", "startswith", "gt", "gte", "lt", "lte", "like", "notlike",
               "glob", "in", "notin", "arraycontains", "arraynotcontains", "date", "isnull", "notnull", "isblank",
               "notblank"}
-# The values table's HTML page selects only the columns it shows and those the value text is made of: datasette
-# renders every selected cell through the plugin hooks, and half the columns were half the page's cost.
+# The values table's HTML page selects only the columns it shows (the value text, with unit and spread, comes
+# from the descriptions made at start-up): datasette renders every selected cell through the plugin hooks,
+# and the cells are most of the page's cost.
 # (Ask for others with ?_col=NAME; JSON and CSV keep every column.)
-PAGE_COLUMNS = {"curated_values": ("value", "unit", "uncertainty", "spread", "low", "high", "n", "missing_reason",
-                                   "species_id", "life_stage_id", "sex", "compartment_id", "quantity_id",
+PAGE_COLUMNS = {"curated_values": ("value", "species_id", "life_stage_id", "sex", "compartment_id", "quantity_id",
                                    "source_id", "locator", "verified", "basis")}
 COLUMN_ARGS = ("_sort", "_sort_desc", "_facet", "_facet_array", "_facet_date", "_col", "_nocol", "_label")
 # zeroblob/randomblob make huge values, fts3_tokenizer hands out native pointers, load_extension loads code;
@@ -333,13 +362,14 @@ def startup(datasette):
     importlib.import_module("datasette.handle_exception").rich = None
     _pages(datasette)
     _columns(datasette)
+    _described(datasette)
 
 
 @hookimpl
 def asgi_wrapper(datasette):
     """Before any view: refuse writes and debug endpoints, answer bad column names with 400, serve the
     modeller pages, bound arbitrary SQL; then serve repeated GETs from memory."""
-    config = datasette.plugin_config(PLUGIN) or {}
+    config = _config(datasette)
     budget = int(config.get("page_cache_mb", 64)) * 2**20
     cache = PageCache(budget) if budget else None
     gate: list[SqlGate] = []
@@ -454,8 +484,7 @@ async def _cached(cache, budget, app, scope, receive, send):
 
 @hookimpl
 def extra_template_vars(template, database, table, view_name, request, datasette):
-    config = datasette.plugin_config(PLUGIN) or {}
-    extra = {"bodyplan_caution": config.get("caution", "")}
+    extra = {"bodyplan_caution": _config(datasette).get("caution", "")}
     if view_name != "row" or table not in ("sources", "curated_values") or request is None:
         return extra
     key = tilde_decode(request.url_vars.get("pks", ""))
