@@ -114,8 +114,9 @@ def load(base: str, paths, total: int, clients: int, expect=(200,)) -> dict:
     port = int(base.rsplit(":", 1)[1])
     work = queue.SimpleQueue()
     for i, path in zip(range(total), itertools.cycle(paths)):
-        work.put(f"{path}{'&' if '?' in path else '?'}_miss={i}")
+        work.put((path, f"{path}{'&' if '?' in path else '?'}_miss={i}"))
     latencies: list[float] = []
+    by_route: dict[str, list[float]] = {}
     errors: list[str] = []
     statuses: dict[int, int] = {}
     ready = threading.Barrier(clients + 1)
@@ -125,7 +126,7 @@ def load(base: str, paths, total: int, clients: int, expect=(200,)) -> dict:
         ready.wait()
         while True:
             try:
-                path = work.get_nowait()
+                route, path = work.get_nowait()
             except queue.Empty:
                 break
             start = time.perf_counter()
@@ -141,6 +142,7 @@ def load(base: str, paths, total: int, clients: int, expect=(200,)) -> dict:
                 conn.close()
                 conn = http.client.HTTPConnection(HOST, port, timeout=60)
             latencies.append((time.perf_counter() - start) * 1000)
+            by_route.setdefault(route, []).append(latencies[-1])
         conn.close()
 
     threads = [threading.Thread(target=client) for _ in range(clients)]
@@ -154,7 +156,9 @@ def load(base: str, paths, total: int, clients: int, expect=(200,)) -> dict:
     cuts = statistics.quantiles(latencies, n=100) if len(latencies) > 1 else latencies * 99
     return {"requests": len(latencies), "errors": len(errors), "error_samples": errors[:5], "statuses": statuses,
             "p50_ms": round(cuts[49], 1), "p95_ms": round(cuts[94], 1), "max_ms": round(max(latencies), 1),
-            "throughput_rps": round(len(latencies) / wall, 1)}
+            "throughput_rps": round(len(latencies) / wall, 1),
+            "p95_ms_by_route": {r: round(statistics.quantiles(v, n=20)[18], 1) if len(v) > 1 else round(v[0], 1)
+                                for r, v in by_route.items()}}
 
 
 def warm(base: str, paths: list[str]) -> None:
@@ -255,6 +259,8 @@ def main() -> None:
     print(line("baseline /-/versions.json", baseline))
     print(line("modeller pages", modeller, baseline))
     print(line("table and JSON views", tables, baseline))
+    for route, p95 in tables["p95_ms_by_route"].items():
+        print(f"    p95 {p95:7.1f} ms  {route}")
     print(line("baseline (--allow-sql, 4 clients)", baseline_sql))
     print(line("cheap pages during the flood", flooded["cheap"], baseline_sql))
     print(line(f"flood: {args.flood_clients}x{args.flood_each} endless CTEs", flooded["flood"]),
