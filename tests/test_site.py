@@ -10,14 +10,17 @@ from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
+from hypothesis import given
+from hypothesis import strategies as st
 
 from bodyplan import CAUTION
 from bodyplan.site.app import SETTINGS, make_datasette, plugin_file, write_site
 from bodyplan.site.metadata import FACETS, unit_in_words
-from bodyplan.site.plugin import describe_value
+from bodyplan.site.plugin import FILTER_OPS, describe_value, unknown_column
 from bodyplan.site.queries import QUERIES
 
 FIXTURE_TREE = Path(__file__).parent / "data" / "site"  # invented values, for when the bundled data fails
+COLUMNS = {"id", "species_id", "value", "unit", "rowid"}  # a table's columns as the plugin reads them
 
 
 def build_site_store(path: Path) -> Path:
@@ -35,6 +38,12 @@ def build_site_store(path: Path) -> Path:
 @pytest.fixture(scope="module")
 def store(tmp_path_factory) -> Path:
     return build_site_store(tmp_path_factory.mktemp("site") / "store.sqlite")
+
+
+@pytest.fixture(scope="module")
+def site(store):
+    """One app with the modeller pages rendered (they take seconds; every page test shares them)."""
+    return make_datasette(store)
 
 
 @pytest.fixture(scope="module")
@@ -107,7 +116,7 @@ def test_units_in_words():
 # --- pages, metadata, facets, named queries -----------------------------------------------------------
 
 def test_every_table_answers_as_page_and_json(store, sample):
-    ds = make_datasette(store)
+    ds = make_datasette(store, pages="none")
     responses = fetch(ds, *[("GET", f"/bodyplan/{t}") for t in sample["tables"]],
                       *[("GET", f"/bodyplan/{t}.json?_shape=array&_size=5") for t in sample["tables"]])
     assert [r.status_code for r in responses] == [200] * len(responses)
@@ -121,7 +130,7 @@ def test_every_named_query_answers(store, sample):
               "coverage": f"species={sample['species']}",
               "source_values": f"source={sample['source']}"}
     assert set(params) == set(QUERIES)
-    ds = make_datasette(store)
+    ds = make_datasette(store, pages="none")
     for name, query in params.items():
         response = get(ds, f"/bodyplan/{name}.json?{query}&_shape=objects")
         assert response.status_code == 200, name
@@ -132,7 +141,7 @@ def test_every_named_query_answers(store, sample):
 
 
 def test_coverage_lists_every_compartment_even_without_values(store, sample):
-    ds = make_datasette(store)
+    ds = make_datasette(store, pages="none")
     rows = get(ds, f"/bodyplan/coverage.json?species={sample['species']}&_shape=array").json()
     assert {r["compartment"] for r in rows} == set(sample["compartments"])
     assert sum(r["rows_curated"] for r in rows) == sample["species_values"]
@@ -140,7 +149,7 @@ def test_coverage_lists_every_compartment_even_without_values(store, sample):
 
 
 def test_metadata_describes_every_table_and_column(store, sample):
-    ds = make_datasette(store)
+    ds = make_datasette(store, pages="none")
     meta = get(ds, "/-/metadata.json").json()
     assert CAUTION in meta["description_html"]
     tables = meta["databases"]["bodyplan"]["tables"]
@@ -155,13 +164,13 @@ def test_metadata_describes_every_table_and_column(store, sample):
 
 
 def test_front_page_shows_title_and_caution(store):
-    page = get(make_datasette(store), "/").text
+    page = get(make_datasette(store, pages="none"), "/").text
     assert "bodyplan: species physiology for PBPK modelling" in page
     assert CAUTION in page
 
 
 def test_table_page_shows_description_licence_and_facets(store, sample):
-    ds = make_datasette(store)
+    ds = make_datasette(store, pages="none")
     page = get(ds, "/bodyplan/curated_values").text
     assert "One row per value printed in a source" in page and "MIT" in page
     data = get(ds, f"/bodyplan/curated_values.json?species_id={sample['species']}").json()
@@ -171,7 +180,7 @@ def test_table_page_shows_description_licence_and_facets(store, sample):
 
 
 def test_value_page_shows_uncertainty_verified_and_source_link(store, sample):
-    page = get(make_datasette(store), f"/bodyplan/curated_values/{sample['value_id']}").text
+    page = get(make_datasette(store, pages="none"), f"/bodyplan/curated_values/{sample['value_id']}").text
     conn = sqlite3.connect(store)
     conn.row_factory = sqlite3.Row
     row = conn.execute("SELECT * FROM curated_values WHERE id = ?", (sample["value_id"],)).fetchone()
@@ -184,7 +193,7 @@ def test_value_page_shows_uncertainty_verified_and_source_link(store, sample):
 def test_source_page_shows_citation_doi_and_all_its_values(store, sample):
     conn = sqlite3.connect(store)
     citation, doi = conn.execute("SELECT citation, doi FROM sources WHERE id = ?", (sample["source"],)).fetchone()
-    page = get(make_datasette(store), f"/bodyplan/sources/{sample['source']}").text
+    page = get(make_datasette(store, pages="none"), f"/bodyplan/sources/{sample['source']}").text
     assert citation.replace("&", "&amp;").replace("'", "&#39;") in page
     if doi:
         assert f'href="https://doi.org/{doi}"' in page
@@ -210,7 +219,7 @@ def test_writes_are_refused_and_the_store_is_unchanged(store):
 
     before = sha256(store)
     count = sqlite3.connect(store).execute("SELECT count(*) FROM curated_values").fetchone()[0]
-    ds = make_datasette(store)
+    ds = make_datasette(store, pages="none")
     responses = fetch(ds, *[("GET", f"/bodyplan.json?sql={quote(sql)}") for sql in WRITES],
                       ("POST", "/bodyplan", {"sql": WRITES[1]}),
                       ("POST", "/bodyplan/curated_values", {"value": "0"}),
@@ -225,15 +234,15 @@ def test_writes_are_refused_and_the_store_is_unchanged(store):
     assert ds.get_database("bodyplan").is_mutable is False
 
 
-def test_select_is_allowed_but_time_limited(store):
+def test_select_is_allowed_with_allow_sql_but_time_limited(store):
     from urllib.parse import quote
 
-    ds = make_datasette(store)
+    ds = make_datasette(store, allow_sql=True, pages="none")
     ok = get(ds, "/bodyplan.json?sql=" + quote("SELECT count(*) AS n FROM species") + "&_shape=array")
     assert ok.status_code == 200 and ok.json()[0]["n"] > 0
     endless = "WITH RECURSIVE c(i) AS (SELECT 1 UNION ALL SELECT i + 1 FROM c) SELECT max(i) FROM c"
     slow = get(ds, "/bodyplan.json?sql=" + quote(endless))
-    assert slow.status_code == 400 and "too long" in slow.text
+    assert slow.status_code == 400 and "longer than" in slow.text
     assert get(ds, "/-/settings.json").json()["sql_time_limit_ms"] == SETTINGS["sql_time_limit_ms"]
 
 
@@ -241,7 +250,7 @@ def test_serve_listens_on_loopback_by_default():
     from bodyplan.cli import cli
 
     result = CliRunner().invoke(cli, ["serve", "--help"])
-    assert result.exit_code == 0 and "127.0.0.1" in result.output
+    assert result.exit_code == 0 and "127.0.0.1" in result.output and "--allow-sql" in result.output
 
 
 # --- site folder --------------------------------------------------------------------------------------
@@ -292,36 +301,266 @@ def test_page_cache_keeps_recent_pages_within_its_budget():
 
 
 def test_repeated_page_comes_from_the_cache(store):
-    ds = make_datasette(store)
+    ds = make_datasette(store, pages="none")
     first, second = fetch(ds, ("GET", "/bodyplan/curated_values?_size=5"), ("GET", "/bodyplan/curated_values?_size=5"))
     assert first.status_code == second.status_code == 200
     assert "Queries took" in first.text  # a fresh render would print a different time here
     assert first.content == second.content
 
 
-def test_coverage_page_links_each_cell_to_its_values(store):
-    """/coverage: every species appears; a cell's count equals the rows its link opens, and SQL's count."""
+# --- modeller pages -------------------------------------------------------------------------------------
+
+def _open(store):
+    from bodyplan.api import open_store
+
+    return open_store(store)
+
+
+def test_coverage_page_is_the_gap_report(store, site):
+    """/coverage: every cell carries the gap report's state and colour, and links to exactly the rows it counts."""
     import re
-    import sqlite3
     from html import unescape
 
-    ds = make_datasette(store)
-    page = get(ds, "/coverage?stage=adult")
+    from bodyplan.api.gaps import gap_report
+    from bodyplan.report.heatmap import state_colours
+    from matplotlib.colors import to_hex
+
+    report = gap_report(_open(store), None, stage="adult", layout="whole_body")
+    page = get(site, "/coverage")
     assert page.status_code == 200
+    cells = re.findall(r'<td class="state-(\d)" data-state="([^"]+)" style="background: (#[0-9a-f]{6});', page.text)
+    assert len(cells) == len(report.coverage)  # one cell per species × parameter of the report
+    assert sorted(s for _, s, _ in cells) == sorted(report.coverage["state"])
+    colours = {state: to_hex(c) for state, c in state_colours().items()}
+    assert all(colours[state] == colour for _, state, colour in cells)
+    links = re.findall(r'href="(/bodyplan/curated_values\?[^"]+)" data-count="(\d+)"', page.text)
+    assert links and sorted(int(n) for _, n in links) == sorted(n for n in report.coverage["n_values"] if n)
+    for href, count in links[::max(1, len(links) // 10)]:
+        rows = get(site, unescape(href).replace("/curated_values?", "/curated_values.json?") +
+                   "&_shape=array&_size=max").json()
+        assert len(rows) == int(count), href
+    assert "COVERAGE_SQL" not in plugin_file().read_text()  # the site no longer declares its own coverage
+
+
+def test_species_page_shows_stages_readiness_and_links(store, site, sample):
+    from bodyplan.api.gaps import gap_report
+
+    sp = sample["species"]
+    page = get(site, f"/species/{sp}")
+    assert page.status_code == 200
+    ready = gap_report(_open(store), sp, stage="adult").readiness.iloc[0]
+    assert f"{ready.available} of {ready.total} numbers" in page.text
+    assert f'href="/sets/{sp}/adult/whole_body"' in page.text and f'href="/sets/{sp}/adult/rich_slow"' in page.text
+    stages = [r[0] for r in sqlite3.connect(store).execute(
+        "SELECT DISTINCT life_stage_id FROM curated_values WHERE species_id = ?", (sp,))]
+    assert all(f'id="stage-{st}"' in page.text for st in stages)
+    index = get(site, "/species").text
+    names = [r[0] for r in sqlite3.connect(store).execute("SELECT id FROM species")]
+    assert all(f'href="/species/{name}"' in index for name in names)
+
+
+def test_parameter_set_page_matches_params_and_downloads_reproduce_it(store, site, sample):
+    """The page's numbers, JSON, CSV and SBML are those of `bodyplan params` with the command it shows."""
+    import libsbml
+
+    from bodyplan.cli import cli
+    from bodyplan.site.sets import number_text
+
+    sp = sample["species"]
+    base = f"/sets/{sp}/adult/whole_body"
+    page, as_json, as_csv, as_sbml = fetch(site, *[("GET", base + ext) for ext in ("", ".json", ".csv", ".sbml.xml")])
+    assert [r.status_code for r in (page, as_json, as_csv, as_sbml)] == [200] * 4
+    command = f"bodyplan params {sp} --stage adult --layout whole_body"
+    assert command in page.text
+    args = command.split()[1:] + ["--store", str(store)]
+    for fmt, response in (("json", as_json), ("csv", as_csv), ("sbml", as_sbml)):
+        result = CliRunner().invoke(cli, args + ["--format", fmt])
+        assert result.exit_code == 0, result.output
+        assert result.output.strip() == response.text.strip(), fmt
+    d = as_json.json()
+    for c in d["compartments"]:  # every number on the page, formatted as the CLI formats it
+        assert f'<tr id="c-{c["compartment"]}">' in page.text
+        assert number_text(c["volume"]).replace("&", "&amp;") in page.text
+    assert f'{len(d["gaps"])})</h2>' in page.text
+    for check in d["checks"]:
+        assert check["check"] in page.text
+    doc = libsbml.readSBMLFromString(as_sbml.text)
+    assert doc.getModel() is not None and doc.getModel().getNumCompartments() > 0
+
+
+def test_value_page_shows_number_first_with_source_and_locator(store, site, sample):
     conn = sqlite3.connect(store)
-    names = [r[0] for r in conn.execute("SELECT common_name FROM species")]
-    assert all(f">{name}<" in page.text for name in names)
-    links = re.findall(r'href="(/bodyplan/curated_values\?[^"]+)">(\d+)</a>', page.text)
-    assert links, "no covered cell"
-    for href, count in links[::max(1, len(links) // 12)]:
-        href = unescape(href)
-        rows = get(ds, href.replace("/curated_values?", "/curated_values.json?") + "&_shape=array&_size=max").json()
-        assert len(rows) == int(count)
-        args = dict(p.split("=", 1) for p in href.split("?", 1)[1].split("&"))
-        quantities = args["quantity_id__in"].split(",")
-        expected = conn.execute(
-            f"SELECT count(*) FROM curated_values WHERE species_id = ? AND life_stage_id = ? AND compartment_id = ? "
-            f"AND quantity_id IN ({','.join('?' * len(quantities))}) AND value IS NOT NULL",
-            [args["species_id"], args["life_stage_id"], args["compartment_id"], *quantities]).fetchone()[0]
-        assert expected == int(count)
-    assert 'class="gap"' in page.text
+    conn.row_factory = sqlite3.Row
+    row = conn.execute("SELECT v.*, s.citation FROM curated_values v JOIN sources s ON s.id = v.source_id "
+                       "WHERE v.id = ?", (sample["value_id"],)).fetchone()
+    text = get(site, f"/values/{sample['value_id']}").text
+    number = text.index(f'<p class="big" id="number">{describe_value(row)}</p>')
+    assert number < text.index(row["locator"].replace("&", "&amp;")) and number < text.index('id="source"')
+    assert f'href="/bodyplan/sources/{row["source_id"]}"' in text
+    assert ("✓ verified" if row["verified"] else "not verified") in text
+
+
+def test_modeller_pages_ignore_query_strings_and_answer_404_and_503(store, site):
+    from bodyplan.site.plugin import Pages
+
+    assert get(site, "/species?_miss=17").status_code == 200  # a distinct URL is the same page
+    missing = get(site, "/species/no_such_species")
+    assert missing.status_code == 404 and "start at /species" in missing.text
+    old = get(site, "/coverage?stage=juvenile")
+    assert old.status_code == 302 and old.headers["location"] == "/coverage/whole_body/juvenile"
+    pending = make_datasette(store, pages="none")
+    pending.bodyplan_pages = Pages()  # not yet rendered
+    response = get(pending, "/species")
+    assert response.status_code == 503 and response.headers["retry-after"] == "5"
+
+
+def test_site_folder_serves_the_modeller_pages(store, tmp_path):
+    from datasette.app import Datasette
+
+    out = write_site(tmp_path / "site", store)
+    sp = sqlite3.connect(store).execute("SELECT species_id FROM curated_values LIMIT 1").fetchone()[0]
+    assert (out / "pages" / "species" / f"{sp}.html").exists()
+    ds = Datasette(config_dir=out)
+    page, download = fetch(ds, ("GET", f"/species/{sp}"), ("GET", f"/sets/{sp}/adult/whole_body.json"))
+    assert page.status_code == 200 and "<h1>" in page.text
+    assert download.status_code == 200 and download.json()["species"] == sp
+
+
+# --- abuse: each tried, each refused, the store unchanged ------------------------------------------------
+
+def _sql(sql: str) -> str:
+    from urllib.parse import quote
+
+    return "/bodyplan.json?sql=" + quote(sql)
+
+
+BIG = ("WITH RECURSIVE s(x) AS (SELECT 'xxxxxxxxxx' UNION ALL SELECT x || x FROM s WHERE length(x) < 400000), "
+       "c(i) AS (SELECT 1 UNION ALL SELECT i + 1 FROM c LIMIT 100) SELECT i, (SELECT max(x) FROM s) AS x FROM c")
+ABUSE = {  # query → a word of the refusal
+    "SELECT zeroblob(200000000) AS b": "zeroblob",
+    "SELECT length(randomblob(200000000)) AS b": "randomblob",
+    "SELECT fts3_tokenizer('simple') AS t": "fts3_tokenizer",
+    "SELECT load_extension('/tmp/x')": "load_extension",
+    "SELECT length(printf('%.*c', 2000000000, 'x'))": "printf",
+    "PRAGMA user_version = 3": "not authorized",
+    "PRAGMA query_only = 0": "not authorized",
+    "WITH RECURSIVE s(x) AS (SELECT 'x' UNION ALL SELECT x || x FROM s) SELECT max(length(x)) FROM s": "too big",
+    "WITH RECURSIVE c(i) AS (SELECT 1 UNION ALL SELECT i + 1 FROM c) SELECT max(i) FROM c": "longer than",
+    BIG: "larger than",
+}
+
+
+def test_arbitrary_sql_is_off_by_default(store):
+    before = sha256(store)
+    ds = make_datasette(store, pages="none")
+    responses = fetch(ds, *[("GET", _sql(q)) for q in ["SELECT 1", *ABUSE]],
+                      ("GET", "/bodyplan/curated_values?_where=1%3D1"), ("GET", "/bodyplan.csv?sql=SELECT+1"))
+    assert [r.status_code for r in responses] == [403] * len(responses)
+    assert "--allow-sql" in responses[0].text
+    assert sha256(store) == before
+
+
+def test_every_sql_abuse_is_refused_when_sql_is_allowed(store):
+    before = sha256(store)
+    ds = make_datasette(store, allow_sql=True, pages="none")
+    responses = fetch(ds, *[("GET", _sql(q)) for q in ABUSE], ("GET", _sql("SELECT count(*) AS n FROM sources")))
+    for (query, word), response in zip(ABUSE.items(), responses):
+        assert response.status_code == 400 and word in response.text, (query, response.status_code, response.text)
+    assert responses[-1].status_code == 200  # ordinary reading still works
+    assert sha256(store) == before
+
+
+def test_authorizer_denies_on_every_connection():
+    """The rule itself, on a plain connection: read pragmas pass, writing ones and the listed functions fail."""
+    from bodyplan.site.plugin import guard_connection
+
+    conn = sqlite3.connect(":memory:")
+    conn.execute("CREATE TABLE t (a)")
+    guard_connection(conn)
+    assert conn.execute("PRAGMA table_info(t)").fetchall()
+    assert conn.execute("SELECT name FROM pragma_table_info('t')").fetchall() == [("a",)]
+    for sql in ("PRAGMA journal_mode = WAL", "PRAGMA writable_schema = 1", "SELECT zeroblob(10)",
+                "ATTACH DATABASE ':memory:' AS other"):
+        with pytest.raises(sqlite3.DatabaseError, match="not authorized"):
+            conn.execute(sql)
+
+
+def test_slow_query_flood_is_bounded_and_pages_keep_answering(store):
+    """More endless queries than the pool and its queue hold: each is stopped or turned away, none is
+    answered 500, and pages answer meanwhile."""
+    endless = _sql("WITH RECURSIVE c(i) AS (SELECT 1 UNION ALL SELECT i + 1 FROM c) SELECT max(i) FROM c")
+    ds = make_datasette(store, allow_sql=True, pages="none", limits={"sql_workers": 1, "sql_queue": 2})
+
+    async def run():
+        await ds.invoke_startup()
+        flood = [asyncio.create_task(ds.client.get(endless)) for _ in range(6)]
+        await asyncio.sleep(0.05)
+        page = await ds.client.get("/bodyplan/species.json?_shape=array")
+        return page, await asyncio.gather(*flood)
+
+    page, flood = asyncio.run(run())
+    assert page.status_code == 200
+    statuses = sorted(r.status_code for r in flood)
+    assert set(statuses) <= {400, 503} and 503 in statuses and 400 in statuses, statuses
+
+
+@pytest.mark.parametrize("query, column", [
+    ("_sort=nope", "nope"), ("_sort_desc=nope", "nope"), ("_facet=nope", "nope"), ("nope__exact=1", "nope"),
+    ("nope=1", "nope"), ("species_id__nope=1", "nope"), ("_facet_array=nope", "nope"), ("_col=nope", "nope"),
+    ("_through=abc", "_through"), ('_through={"table":"nope","column":"id","value":"x"}', "_through"),
+])
+def test_unknown_sort_or_filter_answers_400_with_a_message(store, query, column):
+    response = get(make_datasette(store, pages="none"), f"/bodyplan/curated_values?{query}")
+    assert response.status_code == 400 and (column if column.startswith("_") else repr(column)) in response.text, \
+        response.text[:200]
+
+
+@pytest.mark.parametrize("path", ["/-/threads.json", "/-/threads", "/-/permissions", "/-/allow-debug", "/-/plugins.json",
+                                  "/-/messages", "/-/actor.json", "/-/databases.json"])
+def test_debug_endpoints_are_off(store, path):
+    assert get(make_datasette(store, pages="none"), path).status_code == 404
+
+
+def test_table_pages_stay_within_their_query_budget(store):
+    """A page's cost is counted in SQL statements, not timed: the values table with its facets, a filtered
+    view, its JSON and a row page each run a bounded number of queries (the budget of this site)."""
+    from datasette.tracer import capture_traces
+
+    budget = {"/bodyplan/curated_values": 20, "/bodyplan/curated_values?species_id=dog&quantity_id=gfr": 20,
+              "/bodyplan/curated_values.json?_size=100": 20, "/bodyplan/curated_values/1": 12}
+    ds = make_datasette(store, pages="none")
+
+    async def run():
+        await ds.invoke_startup()
+        counts = {}
+        for path in budget:
+            await ds.client.get(path)  # schema introspection happens once, on first use
+            traces: list = []
+            with capture_traces(traces):
+                response = await ds.client.get(path + ("&" if "?" in path else "?") + "_miss=1")
+            assert response.status_code == 200, path
+            counts[path] = len(traces)
+        return counts
+
+    counts = asyncio.run(run())
+    assert all(counts[p] <= budget[p] for p in budget), counts
+    assert len(FACETS) == 3
+
+
+@given(st.sampled_from(sorted(COLUMNS)), st.sampled_from(["", *sorted(FILTER_OPS)]),
+       st.text(alphabet="abcdefghijklmnopqrstuvwxyz_", min_size=1, max_size=12))
+def test_known_columns_pass_and_unknown_ones_are_named(column, op, name):
+    """Every column with every filter passes; any other name is refused with that name in the message."""
+    key = f"{column}__{op}" if op else column
+    assert unknown_column(COLUMNS, [(key, "1"), ("_sort", column), ("_facet", column), ("_size", "5")]) is None
+    if name not in COLUMNS and not name.startswith("_"):
+        assert repr(name) in unknown_column(COLUMNS, [(name, "1")])
+        assert repr(name) in unknown_column(COLUMNS, [("_sort_desc", name)])
+    if op:
+        assert unknown_column(COLUMNS, [(f"{column}__{name}x", "1")]) is not None  # no filter ends in x
+
+
+def test_filter_operators_are_datasettes():
+    from datasette.filters import Filters
+
+    assert FILTER_OPS == {f.key for f in Filters._filters}

@@ -1,6 +1,7 @@
 """What a person sees: `bodyplan serve` in a subprocess, driven by Debian's Chromium through playwright.
 
-Screenshots of each step go to test-artifacts/ (git-ignored) for a human to look at.
+Screenshots of each step go to test-artifacts/ (git-ignored) for a human to look at, each modeller page
+also at a phone's width (390 px).
 """
 
 from __future__ import annotations
@@ -56,7 +57,7 @@ def server(store):
     deadline = time.monotonic() + 60
     while True:
         try:
-            urllib.request.urlopen(f"{base}/-/versions.json", timeout=2).read()
+            urllib.request.urlopen(f"{base}/species", timeout=2).read()  # 503 until the pages are rendered
             break
         except OSError:
             if proc.poll() is not None or time.monotonic() > deadline:
@@ -72,14 +73,18 @@ def server(store):
 
 
 @pytest.fixture(scope="module")
-def page():
+def browser():
     from playwright.sync_api import sync_playwright
 
     with sync_playwright() as pw:
         browser = pw.chromium.launch(executable_path=str(CHROMIUM), headless=True, args=LAUNCH_ARGS)
-        tab = browser.new_page(viewport={"width": 1400, "height": 1000})
-        yield tab
+        yield browser
         browser.close()
+
+
+@pytest.fixture(scope="module")
+def page(browser):
+    return browser.new_page(viewport={"width": 1400, "height": 1000})
 
 
 def shot(page, name: str, full_page: bool = False) -> None:
@@ -150,3 +155,73 @@ def test_coverage_query_in_the_browser(server, page):
     statuses = set(page.locator("td.col-status").all_inner_texts())
     assert statuses and statuses <= {"covered", "gap", "reported missing"}
     shot(page, "5-coverage")
+
+
+PHONE = {"width": 390, "height": 844}
+
+
+@pytest.fixture(scope="module")
+def phone(browser):
+    return browser.new_page(viewport=PHONE)
+
+
+def fits(tab, selector: str) -> None:
+    """Nothing scrolls sideways, and the element holding the main number lies inside the screen."""
+    width = tab.viewport_size["width"]
+    assert tab.evaluate("document.documentElement.scrollWidth") <= width
+    box = tab.locator(selector).first.bounding_box()
+    assert box and box["x"] >= 0 and box["x"] + box["width"] <= width, box
+
+
+def test_modeller_pages_in_the_browser(server, page, phone, store):
+    """Species → parameter set → a value behind one of its numbers → coverage, at desktop and phone width."""
+    conn = sqlite3.connect(store)
+    species = (conn.execute("SELECT species_id FROM curated_values WHERE species_id = 'dog'").fetchone()
+               or conn.execute("SELECT species_id FROM curated_values GROUP BY 1 ORDER BY count(*) DESC").fetchone())[0]
+
+    page.goto(f"{server}/species")
+    page.locator(f"a[href='/species/{species}']").first.click()
+    page.wait_for_url(f"**/species/{species}")
+    assert "numbers" in page.locator("h3").first.inner_text() and page.locator("table.coverage-strip").count()
+    shot(page, "6-species", full_page=True)
+
+    page.locator("a.set-link").first.click()
+    page.wait_for_url(f"**/sets/{species}/*/whole_body")
+    assert page.locator("#command").inner_text().startswith(f"bodyplan params {species}")
+    for label in ("JSON", "CSV", "SBML"):
+        assert page.get_by_role("link", name=label).count() == 1
+    assert page.locator("#body-weight").inner_text().endswith("kg")
+    shot(page, "7-parameter-set", full_page=True)
+
+    value_link = page.locator("table.compartments a[href^='/values/']").first
+    value_id = value_link.get_attribute("href").rsplit("/", 1)[1]
+    value_link.click()
+    page.wait_for_url(f"**/values/{value_id}")
+    number = page.locator("#number").inner_text()
+    source = conn.execute("SELECT s.citation, v.locator FROM curated_values v JOIN sources s ON s.id = v.source_id "
+                          "WHERE v.id = ?", (value_id,)).fetchone()
+    assert number and source[0] in page.locator("#source").inner_text()
+    assert source[1] in page.locator("#source").inner_text()
+    shot(page, "8-value")
+
+    page.goto(f"{server}/coverage")
+    assert page.locator("td[data-state]").count() > 0
+    shot(page, "9-coverage")
+
+    # the values table: the value column is on the first screen at 1,400 px
+    page.goto(f"{server}/bodyplan/curated_values?species_id={species}")
+    box = page.locator("th.col-value").bounding_box()
+    assert box and box["x"] + box["width"] <= 1400
+    shot(page, "10-values-table")
+
+    for path, selector, name in ((f"/species/{species}", "h1", "11-phone-species"),
+                                 (f"/sets/{species}/adult/whole_body", "#body-weight", "12-phone-parameter-set"),
+                                 (f"/values/{value_id}", "#number", "13-phone-value"),
+                                 ("/coverage", "h1", "14-phone-coverage")):
+        phone.goto(server + path)
+        fits(phone, selector)
+        if "parameter-set" in name:  # every number of the set, not only the first, stays on the screen
+            for cell in phone.locator("table.compartments td.num").all()[:6]:
+                box = cell.bounding_box()
+                assert box["x"] + box["width"] <= PHONE["width"], box
+        shot(phone, name, full_page=True)

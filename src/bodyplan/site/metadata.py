@@ -14,11 +14,12 @@ from pathlib import Path
 
 from .. import CAUTION
 from ..schema import descriptors
-from .plugin import PLUGIN
+from .plugin import DATABASE, PLUGIN
 from .queries import QUERIES
 
-DATABASE = "bodyplan"  # the store is always published under this name, whatever its file is called
-FACETS = ["species_id", "life_stage_id", "compartment_id", "quantity_id", "basis", "verified"]
+# The facets a modeller narrows by; each costs a query on every table page (basis and verified are
+# one click away as filters, and the species pages already split by life stage).
+FACETS = ["species_id", "quantity_id", "compartment_id"]
 
 # store column of curated_values → curated-file column whose description it keeps
 CURATED_COLUMN = {"species_id": "species", "life_stage_id": "life_stage", "compartment_id": "compartment",
@@ -150,7 +151,7 @@ def column_descriptions(conn: sqlite3.Connection, table: str) -> dict[str, str]:
     return described
 
 
-def build_metadata(store: str | Path) -> dict:
+def build_metadata(store: str | Path, allow_sql: bool = False) -> dict:
     """The metadata.json of the site, generated from the store it describes."""
     conn = sqlite3.connect(f"file:{Path(store)}?mode=ro", uri=True)
     try:
@@ -183,12 +184,15 @@ def build_metadata(store: str | Path) -> dict:
             "GFR, hematocrit, tissue composition), every value with its source, locator, uncertainty, "
             "unit and verification flag. Read-only.</p>"
             f"<p class=\"bodyplan-caution\"><strong>Caution:</strong> {CAUTION}</p>"
-            "<p>Start with <a href=\"/bodyplan/curated_values\">curated values</a> (facet by species, "
-            "stage, compartment, quantity, basis, verified) or a named query (parameter set, one parameter "
-            "across species, coverage and gaps) on <a href=\"/bodyplan\">the store's page</a>. "
-            "<a href=\"/coverage\">Coverage</a> shows, species by species, which parameters have values and "
-            "links each cell to them.</p>"),
+            "<p><a href=\"/species\">Species</a>: a page per species with what the store holds at each "
+            "life stage, how ready its parameter sets are and what is missing; each parameter set (with "
+            "JSON, CSV and SBML downloads) and each value has a page of its own. "
+            "<a href=\"/coverage\">Coverage</a> is the gap report's matrix, each cell linked to its rows.</p>"
+            "<p>Or browse the <a href=\"/bodyplan/curated_values\">curated values</a> (facet by species, "
+            "quantity, compartment) and the named queries (parameter set, one parameter across species, "
+            "coverage and gaps) on <a href=\"/bodyplan\">the store's page</a>.</p>"),
         databases={DATABASE: dict(common, description="The bodyplan store: vocabularies, sources and values.",
                                   tables=table_meta, queries=QUERIES)},
-        plugins={PLUGIN: {"caution": CAUTION, "unit_words": unit_words}},
+        plugins={PLUGIN: {"caution": CAUTION, "unit_words": unit_words, "allow_sql": allow_sql,
+                          "pages_dir": "pages"}},
     )
