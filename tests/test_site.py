@@ -5,6 +5,7 @@ from __future__ import annotations
 import asyncio
 import hashlib
 import json
+import re
 import sqlite3
 from pathlib import Path
 
@@ -325,7 +326,7 @@ def test_coverage_page_is_the_gap_report(store, site):
     from bodyplan.report.heatmap import state_colours
     from matplotlib.colors import to_hex
 
-    report = gap_report(_open(store), None, stage="adult", layout="whole_body")
+    report = gap_report(_open(store), None, life_stage="adult", layout="whole_body")
     page = get(site, "/coverage")
     assert page.status_code == 200
     cells = re.findall(r'<td class="state-(\d)" data-state="([^"]+)" style="background: (#[0-9a-f]{6});', page.text)
@@ -348,7 +349,7 @@ def test_species_page_shows_stages_readiness_and_links(store, site, sample):
     sp = sample["species"]
     page = get(site, f"/species/{sp}")
     assert page.status_code == 200
-    ready = gap_report(_open(store), sp, stage="adult").readiness.iloc[0]
+    ready = gap_report(_open(store), sp, life_stage="adult").readiness.iloc[0]
     assert f"{ready.available} of {ready.total} numbers" in page.text
     assert f'href="/sets/{sp}/adult/whole_body"' in page.text and f'href="/sets/{sp}/adult/rich_slow"' in page.text
     stages = [r[0] for r in sqlite3.connect(store).execute(
@@ -370,8 +371,9 @@ def test_parameter_set_page_matches_params_and_downloads_reproduce_it(store, sit
     base = f"/sets/{sp}/adult/whole_body"
     page, as_json, as_csv, as_sbml = fetch(site, *[("GET", base + ext) for ext in ("", ".json", ".csv", ".sbml.xml")])
     assert [r.status_code for r in (page, as_json, as_csv, as_sbml)] == [200] * 4
-    command = f"bodyplan params {sp} --stage adult --layout whole_body"
-    assert command in page.text
+    command = re.search(r"bodyplan params [^<]*", page.text).group(0).strip()
+    assert command.startswith(f"bodyplan params {sp} --stage adult --layout whole_body")
+    assert ("--allow-gaps" in command) == bool(as_json.json()["gaps"])  # gaps are exported marked, never hidden
     args = command.split()[1:] + ["--store", str(store)]
     for fmt, response in (("json", as_json), ("csv", as_csv), ("sbml", as_sbml)):
         result = CliRunner().invoke(cli, args + ["--format", fmt])

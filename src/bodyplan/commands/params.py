@@ -91,15 +91,21 @@ def render_table(ps, file=None) -> None:
               help="SI: L and L/h; clinical: mL and mL/min.")
 @click.option("--format", "fmt", type=click.Choice(["table", "csv", "json", "sbml"]), default="table",
               show_default=True, help="Output format.")
+@click.option("--stage-fallback", is_flag=True,
+              help="Fill gaps from this species' rows at other life stages (named on each value).")
+@click.option("--verified-only", is_flag=True, help="Use only rows read in their source text.")
+@click.option("--allow-gaps", is_flag=True, help="SBML: export a set with gaps, each marked and set to NaN.")
 @click.option("--out", type=click.Path(dir_okay=False), default=None, help="Write to a file instead of stdout.")
 @store_option
-def params_cmd(species, life_stage, sex, body_weight, layout, fill, units, fmt, out, store_path):
+def params_cmd(species, life_stage, sex, body_weight, layout, fill, units, fmt, stage_fallback, verified_only,
+               allow_gaps, out, store_path):
     """A model-ready parameter set for SPECIES, scaled to a body weight, every gap marked."""
     from ..api import open_store
 
     ps = open_store(store_path).parameter_set(species, life_stage=life_stage, sex=sex, body_mass=body_weight,
-                                              layout=layout, fill=fill, units=units)
-    text = {"json": ps.to_json, "csv": ps.to_csv, "sbml": ps.to_sbml}.get(fmt)
+                                              layout=layout, fill=fill, units=units, stage_fallback=stage_fallback,
+                                              verified_only=verified_only)
+    text = {"json": ps.to_json, "csv": ps.to_csv, "sbml": lambda: ps.to_sbml(allow_gaps=allow_gaps)}.get(fmt)
     if out:
         with open(out, "w", encoding="utf-8", newline="\n") as fh:
             if text:

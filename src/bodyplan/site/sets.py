@@ -89,13 +89,13 @@ class SiteData:
         colours = state_colours()
         out = {}
         for layout in LAYOUTS:
-            report = gap_report(self.store, None, stage="all", layout=layout)
+            report = gap_report(self.store, None, life_stage="all", layout=layout)
             data = report.to_dict()
-            cells = {(c["species"], c["life_stage"], c["parameter"]): c for c in data["coverage"]}
+            cells = {(c["species"], c["life_stage"], c["slot"]): c for c in data["coverage"]}
             readiness = {(r["species"], r["life_stage"]): r for r in data["readiness"]}
             out[layout] = {
                 "layout": layout,
-                "parameters": data["parameters"],
+                "parameters": [dict(p, compartments=p["stored_compartments"]) for p in data["slots"]],
                 "states": [{"state": s, "help": STATE_HELP[s], "colour": colours[s],
                             "text": text_colour(colours[s])} for s in STATES],
                 "colours": colours,
@@ -112,7 +112,7 @@ class SiteData:
         ps = self.store.parameter_set(species, life_stage=stage, layout=layout)
         d = ps.to_dict()
         body = d.get("body_mass") or d.get("body_weight")
-        lines = [self._line("body weight", "whole_body", "body_weight", body, species, stage),
+        lines = [self._line("body mass", "whole_body", "body_mass", body, species, stage),
                  self._line("cardiac output", "whole_body", "cardiac_output", d["cardiac_output"], species, stage)]
         for name, cell in d.get("physiology", {}).items():
             lines.append(self._line(PHYSIOLOGY_LABELS.get(name, name), PHYSIOLOGY_ROWS.get(name, ("", ()))[0],
@@ -126,13 +126,13 @@ class SiteData:
                 "blood_flow": self._cell(c["blood_flow"],
                                          self._rows_behind(species, stage, parts, "blood_flow", c["blood_flow"])),
             })
-        command = f"bodyplan params {species} --stage {stage} --layout {layout}"
+        command = f"bodyplan params {species} --stage {stage} --layout {layout}" + (" --allow-gaps" if ps.gaps else "")
         return {"species": species, "life_stage": stage, "layout": layout, "lines": lines,
                 "compartments": compartments, "volume_unit": d["compartments"][0]["volume"]["unit"],
                 "flow_unit": d["cardiac_output"]["unit"], "liver_flow": d.get("liver_flow", ""),
                 "checks": d.get("checks", []), "gaps": d.get("gaps", []), "caution": d.get("caution", ""),
                 "body_weight": number_text(body), "body_origin": _origin(body), "command": command,
-                "downloads": {"json": ps.to_json() + "\n", "csv": ps.to_csv(), "sbml": ps.to_sbml()}}
+                "downloads": {"json": ps.to_json() + "\n", "csv": ps.to_csv(), "sbml": ps.to_sbml(allow_gaps=True)}}
 
     def _line(self, label, compartment, parameter, cell, species, stage) -> dict:
         if parameter in PHYSIOLOGY_ROWS:
@@ -155,7 +155,7 @@ class SiteData:
         from ..api.parameters import resolve_parameter
 
         if _origin(cell) in ("gap", "not_applicable") or parameter not in (
-                "volume", "blood_flow", "cardiac_output", "body_weight"):
+                "volume", "blood_flow", "cardiac_output", "body_mass"):
             return []
         found = []
         for part in parts or ["whole_body"]:
