@@ -197,6 +197,12 @@ def test_derived_from_a_missing_source(tree):
                              "in sources.bib; add that source first or fix the key", "derived-from-unknown")]
 
 
+def test_derived_from_itself(tree):
+    add_bib_field(tree, "testsource2020", "derived_from = {testsource2020}")
+    assert errors(tree) == [("sources.bib:1: derived_from: entry 'testsource2020' names itself; give the key of the "
+                             "source whose numbers it reprints", "derived-from-self")]
+
+
 def test_derived_from_in_a_circle(tree):
     add_bib_field(tree, "testsource2020", "derived_from = {testsource2021}")
     add_bib_field(tree, "testsource2021", "derived_from = {testsource2020}")
