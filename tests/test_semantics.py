@@ -380,7 +380,10 @@ def test_baseline_sets_reviewed_warnings_apart(tree):
     result = check_files([tree / V])
     assert [f.line for f in result.warnings if f.code == "duplicate-group"] == [c]
     assert [(f.line, f.code) for f in result.accepted] == [(b, "duplicate-group")]
-    assert a < b
+    assert a < b and result.stale == []
+    (tree / "check_baseline.csv").write_text("file,row_id,code,note\n"
+                                             f"{V},a,duplicate-group,invented for tests: no longer warned\n")
+    assert check_files([tree / V]).stale == [(V, "a", "duplicate-group")]
 
 
 def test_check_files_refuses_files_of_two_trees(tree, tmp_path):
@@ -425,3 +428,19 @@ def test_any_age_with_a_time_unit_is_stored_in_days(tmp_path_factory, amount, un
     assert not findings.errors, [str(f) for f in findings.errors]
     days = frame.loc[frame["id"] == "x", "_age_days"].iloc[0]
     assert days == pytest.approx(float(ureg.Quantity(float(f"{amount:g}"), unit).to("day").magnitude))
+
+
+def test_lint_keeps_groups_and_baseline_canonical(tree):
+    from bodyplan.ingest.lint import lint_tree
+
+    write_groups(tree, "testsource2021,all,male female , by sex,", "testsource2020,all,male female,,")
+    (tree / "check_baseline.csv").write_text("file,row_id,code,note\nvalues/b.csv, x ,duplicate-group,\n"
+                                             "values/a.csv,y,duplicate-group,\n")
+    report = lint_tree(tree)
+    assert {"groups.csv", "check_baseline.csv"} <= set(report.changed)
+    assert (tree / "groups.csv").read_text() == ("source,group,contains,label,note\n"
+                                                 "testsource2020,all,male female,,\n"
+                                                 "testsource2021,all,male female,by sex,\n")
+    assert (tree / "check_baseline.csv").read_text() == ("file,row_id,code,note\n"
+                                                         "values/a.csv,y,duplicate-group,\n"
+                                                         "values/b.csv,x,duplicate-group,\n")
