@@ -348,6 +348,16 @@ def test_range_end_quoted_in_the_comment(tree):
         "high (uncertainty range), the value is the central value or the midpoint with statistic reference_midpoint"]
 
 
+def test_midpoint_off_the_middle(tree):
+    line = add(tree, V, id="x", compartment="spleen", quantity="tissue_mass", value="30", unit="g",
+               uncertainty="range", low="25", high="45", statistic="reference_midpoint")
+    add(tree, V, id="y", compartment="heart", quantity="tissue_mass", value="35", unit="g",
+        uncertainty="range", low="25", high="45", statistic="reference_midpoint")
+    assert warnings(tree, "midpoint-not-middle") == [
+        f"{V}:{line}: value: warning: 30 is marked reference_midpoint but the middle of 25..45 is 35; give the "
+        "midpoint, or the statistic the source prints"]
+
+
 def test_fraction_of_empty_body_needs_the_ratio(tree):
     line = add(tree, W, id="x", compartment="liver", quantity="tissue_mass_fraction", value="1.4", unit="%",
                denominator="empty_body")
