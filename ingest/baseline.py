@@ -24,6 +24,7 @@ class FileCheck:
     root: Path
     findings: Findings = field(default_factory=Findings)  # errors, and warnings not in the baseline
     accepted: list[Finding] = field(default_factory=list)
+    stale: list[tuple[str, str, str]] = field(default_factory=list)  # baseline entries of these files no warning matches
     rows: int = 0  # value rows in the checked files
     errors_elsewhere: int = 0  # errors in other files of the tree: while any remain, no plausibility warnings
 
@@ -102,6 +103,11 @@ def check_files(paths, plausibility: bool = True) -> FileCheck:
     findings, _tree, frame = check(root, plausibility)
     mine = Findings([f for f in findings.items if f.file in named])
     kept, accepted = split_accepted(mine, frame, root)
+    ids = row_ids(frame)
+    matched = {(f.file, ids.get((f.file, f.line), ""), f.code) for f in accepted}
+    stale = sorted(k for k in read_baseline(root) if k[0] in named and k not in matched) \
+        if not findings.errors else []  # with errors left, plausibility did not run: nothing can be judged stale
     rows = int(frame["_file"].isin(named).sum()) if len(frame) else 0
     elsewhere = sum(1 for f in findings.errors if f.file not in named)
-    return FileCheck(root=root, findings=kept, accepted=accepted, rows=rows, errors_elsewhere=elsewhere)
+    return FileCheck(root=root, findings=kept, accepted=accepted, rows=rows, errors_elsewhere=elsewhere,
+                     stale=stale)

@@ -395,6 +395,21 @@ def check_range_ends(frame: pd.DataFrame, findings: Findings) -> None:
                 break
 
 
+MIDPOINT_TOLERANCE = 0.01  # common practice, no source: a midpoint printed to 2-3 digits lies within 1 %
+
+
+def check_midpoints(frame: pd.DataFrame, findings: Findings) -> None:
+    """A value marked reference_midpoint must lie in the middle of its low..high."""
+    rows = frame[(frame["_statistic"] == "reference_midpoint") & frame["_value"].notna() & frame["_low"].notna()
+                 & frame["_high"].notna()]
+    middle = (rows["_low"] + rows["_high"]) / 2
+    off = rows[(rows["_value"] - middle).abs() > MIDPOINT_TOLERANCE * middle.abs()]
+    for row, mid in zip(off.to_dict("records"), middle[off.index]):
+        findings.warn(row["_file"], row["_line"], "value",
+                      f"{row['value']} is marked reference_midpoint but the middle of {row['low']}..{row['high']} is "
+                      f"{_fmt(mid)}; give the midpoint, or the statistic the source prints", code="midpoint-not-middle")
+
+
 def check_denominator_ratios(frame: pd.DataFrame, findings: Findings) -> None:
     """A fraction of empty body (or carcass) mass needs the source's own ratio to live body mass."""
     from ..schema.descriptors import DENOMINATORS
@@ -428,4 +443,5 @@ def check_plausibility(frame: pd.DataFrame, tree: CuratedTree, findings: Finding
     check_duplicate_groups(frame, findings)
     check_overlapping_groups(frame, tree, findings)
     check_range_ends(frame, findings)
+    check_midpoints(frame, findings)
     check_denominator_ratios(frame, findings)

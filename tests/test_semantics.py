@@ -197,6 +197,12 @@ def test_derived_from_a_missing_source(tree):
                              "in sources.bib; add that source first or fix the key", "derived-from-unknown")]
 
 
+def test_derived_from_itself(tree):
+    add_bib_field(tree, "testsource2020", "derived_from = {testsource2020}")
+    assert errors(tree) == [("sources.bib:1: derived_from: entry 'testsource2020' names itself; give the key of the "
+                             "source whose numbers it reprints", "derived-from-self")]
+
+
 def test_derived_from_in_a_circle(tree):
     add_bib_field(tree, "testsource2020", "derived_from = {testsource2021}")
     add_bib_field(tree, "testsource2021", "derived_from = {testsource2020}")
@@ -342,6 +348,16 @@ def test_range_end_quoted_in_the_comment(tree):
         "high (uncertainty range), the value is the central value or the midpoint with statistic reference_midpoint"]
 
 
+def test_midpoint_off_the_middle(tree):
+    line = add(tree, V, id="x", compartment="spleen", quantity="tissue_mass", value="30", unit="g",
+               uncertainty="range", low="25", high="45", statistic="reference_midpoint")
+    add(tree, V, id="y", compartment="heart", quantity="tissue_mass", value="35", unit="g",
+        uncertainty="range", low="25", high="45", statistic="reference_midpoint")
+    assert warnings(tree, "midpoint-not-middle") == [
+        f"{V}:{line}: value: warning: 30 is marked reference_midpoint but the middle of 25..45 is 35; give the "
+        "midpoint, or the statistic the source prints"]
+
+
 def test_fraction_of_empty_body_needs_the_ratio(tree):
     line = add(tree, W, id="x", compartment="liver", quantity="tissue_mass_fraction", value="1.4", unit="%",
                denominator="empty_body")
@@ -374,7 +390,10 @@ def test_baseline_sets_reviewed_warnings_apart(tree):
     result = check_files([tree / V])
     assert [f.line for f in result.warnings if f.code == "duplicate-group"] == [c]
     assert [(f.line, f.code) for f in result.accepted] == [(b, "duplicate-group")]
-    assert a < b
+    assert a < b and result.stale == []
+    (tree / "check_baseline.csv").write_text("file,row_id,code,note\n"
+                                             f"{V},a,duplicate-group,invented for tests: no longer warned\n")
+    assert check_files([tree / V]).stale == [(V, "a", "duplicate-group")]
 
 
 def test_check_files_refuses_files_of_two_trees(tree, tmp_path):
@@ -419,3 +438,19 @@ def test_any_age_with_a_time_unit_is_stored_in_days(tmp_path_factory, amount, un
     assert not findings.errors, [str(f) for f in findings.errors]
     days = frame.loc[frame["id"] == "x", "_age_days"].iloc[0]
     assert days == pytest.approx(float(ureg.Quantity(float(f"{amount:g}"), unit).to("day").magnitude))
+
+
+def test_lint_keeps_groups_and_baseline_canonical(tree):
+    from bodyplan.ingest.lint import lint_tree
+
+    write_groups(tree, "testsource2021,all,male female , by sex,", "testsource2020,all,male female,,")
+    (tree / "check_baseline.csv").write_text("file,row_id,code,note\nvalues/b.csv, x ,duplicate-group,\n"
+                                             "values/a.csv,y,duplicate-group,\n")
+    report = lint_tree(tree)
+    assert {"groups.csv", "check_baseline.csv"} <= set(report.changed)
+    assert (tree / "groups.csv").read_text() == ("source,group,contains,label,note\n"
+                                                 "testsource2020,all,male female,,\n"
+                                                 "testsource2021,all,male female,by sex,\n")
+    assert (tree / "check_baseline.csv").read_text() == ("file,row_id,code,note\n"
+                                                         "values/a.csv,y,duplicate-group,\n"
+                                                         "values/b.csv,x,duplicate-group,\n")
