@@ -291,10 +291,12 @@ def unknown_column(columns: set[str], args: list[tuple[str, str]], tables: dict 
         if key.startswith("_"):
             continue
         column, _, op = key.rpartition("__") if "__" in key else (key, "", "")
+        if not op or not column:  # "a__" or "__x": no filter operator, so the whole key names a column
+            column, op = key, ""
         if column not in columns:
-            return f"{key}: the table has no column {column!r}; columns: {', '.join(sorted(columns - {'rowid'}))}"
+            return f"{key!r}: the table has no column {column!r}; columns: {', '.join(sorted(columns - {'rowid'}))}"
         if op and op not in FILTER_OPS:
-            return f"{key}: unknown filter {op!r}; use one of: {', '.join(sorted(FILTER_OPS))}"
+            return f"{key!r}: unknown filter {op!r}; use one of: {', '.join(sorted(FILTER_OPS))}"
     return None
 
 
