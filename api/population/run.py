@@ -169,7 +169,12 @@ def draw_population(spec: PopulationSpec, n: int, seed: int, *, out=None, fmt: s
 def _moments(sums: np.ndarray, n: int, mean: float) -> dict:
     m1, m2 = sums[0] / n, sums[1] / n
     var = max(m2 - m1 * m1, 0.0) * n / (n - 1) if n > 1 else 0.0
-    return {"mean": mean + m1, "sd": math.sqrt(var)}
+    return {"mean": float(mean + m1), "sd": float(math.sqrt(var))}
+
+
+def _largest_shifts(variables: list[dict], k: int = 3) -> list[dict]:
+    shifts = [(abs(v["balance_shift"]["mean"] or 0), v["column"], v["balance_shift"]) for v in variables]
+    return [{"column": c, **shift} for size, c, shift in sorted(shifts, key=lambda s: (-s[0], s[1]))[:k] if size > 0]
 
 
 def _finite(x):
@@ -191,6 +196,10 @@ def build_sidecar(spec: PopulationSpec, n: int, seed: int, means: dict, stats: l
         entry["drawn_around"] = means[v.column]
         entry["drawn"] = _moments(first[i], n, means[v.column])
         entry["kept"] = _moments(kept[i], n, means[v.column])
+        drawn, kept_ = entry["drawn"], entry["kept"]
+        entry["balance_shift"] = {  # relative change the balance made to the mean and the SD
+            "mean": _finite((kept_["mean"] - drawn["mean"]) / drawn["mean"]) if drawn["mean"] else None,
+            "sd": _finite(kept_["sd"] / drawn["sd"] - 1) if drawn["sd"] > 0 else None}
         variables.append(entry)
     touched_v = sum(s.touched_volumes for s in stats)
     touched_f = sum(s.touched_flows for s in stats)
@@ -213,7 +222,7 @@ def build_sidecar(spec: PopulationSpec, n: int, seed: int, means: dict, stats: l
                              if mean_uncertainty else "not sampled: every individual is drawn around the pooled "
                              "means; tau² and the SE of each mean are reported, not mixed into the SD"),
         "without_sd": spec.without_sd,
-        "balance": {"rule": rule, "volumes_touched": touched_v, "volumes_touched_share": touched_v / n,
+        "balance": {"rule": rule, "largest_shifts": _largest_shifts(variables), "volumes_touched": touched_v, "volumes_touched_share": touched_v / n,
                     "flows_touched": touched_f, "flows_touched_share": touched_f / n,
                     "effect": "per variable, 'drawn' are the mean and SD of the first draws, 'kept' those after "
                               "the balance"},
