@@ -4,8 +4,8 @@ chunks, processes, files and the sidecar)."""
 
 from __future__ import annotations
 
-from .run import FORMATS, Population, draw_population
-from .sample import GRID, lognormal_parameters, beta_parameters, scipy_distribution
+from .run import FORMATS, Population, draw_population, grid
+from .sample import GRID, beta_parameters, draw_block, lognormal_parameters, population_means, scipy_distribution
 from .spec import DEFAULT_CV, PopulationError, PopulationSpec, Variable, population_spec
 
 SPEC_OPTIONS = ("life_stage", "sex", "body_mass", "body_mass_cv", "body_mass_range", "layout", "fill",
@@ -33,5 +33,5 @@ def percentile_interval(values, q: float = 0.99, *, confidence: float = 0.95, re
 
 
 __all__ = ["DEFAULT_CV", "FORMATS", "GRID", "Population", "PopulationError", "PopulationSpec", "Variable",
-           "beta_parameters", "draw_population", "lognormal_parameters", "percentile_interval", "population",
-           "population_spec", "scipy_distribution"]
+           "beta_parameters", "draw_block", "draw_population", "grid", "lognormal_parameters", "percentile_interval",
+           "population", "population_means", "population_spec", "scipy_distribution"]

@@ -12,6 +12,7 @@ import json
 import math
 import os
 from concurrent.futures import ProcessPoolExecutor
+from contextlib import nullcontext
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
@@ -39,9 +40,14 @@ class Population:
     columns: list[tuple[str, str]] = field(default_factory=list)
 
 
+def grid(n: int) -> list[tuple[int, int]]:
+    """The fixed block grid of n individuals: (block, size) pairs; block i holds individuals from i·GRID."""
+    return [(i, min(GRID, n - i * GRID)) for i in range(math.ceil(n / GRID))]
+
+
 def _chunks(n: int, chunk_size: int) -> list[list[tuple[int, int]]]:
-    """The fixed block grid, grouped into chunks of whole blocks: [[(block, size), …], …]."""
-    blocks = [(i, min(GRID, n - i * GRID)) for i in range(math.ceil(n / GRID))]
+    """The grid grouped into chunks of whole blocks: [[(block, size), …], …]."""
+    blocks = grid(n)
     per = max(1, math.ceil(chunk_size / GRID))
     return [blocks[i:i + per] for i in range(0, len(blocks), per)]
 
@@ -73,13 +79,14 @@ def _work(spec: PopulationSpec, means: dict, seed: int, chunk: list[tuple[int, i
     return matrix, stats
 
 
-def _results(spec, means, seed, chunks, fmt, workers):
-    """Chunk results in order; with workers > 1 in processes, never more than 2 × workers in flight."""
-    if workers <= 1 or len(chunks) == 1:
+def _results(spec, means, seed, chunks, fmt, workers, executor=None):
+    """Chunk results in order; with workers > 1 in processes (or on ``executor``, anything with
+    concurrent.futures' ``submit``), never more than 2 × workers in flight."""
+    if executor is None and (workers <= 1 or len(chunks) == 1):
         for chunk in chunks:
             yield _work(spec, means, seed, chunk, fmt)
         return
-    with ProcessPoolExecutor(max_workers=workers) as pool:
+    with (nullcontext(executor) if executor is not None else ProcessPoolExecutor(max_workers=workers)) as pool:
         pending = []
         todo = iter(chunks)
         for chunk in todo:
@@ -96,10 +103,12 @@ def _results(spec, means, seed, chunks, fmt, workers):
 
 def draw_population(spec: PopulationSpec, n: int, seed: int, *, out=None, fmt: str | None = None,
                     chunk_size: int = DEFAULT_CHUNK, workers: int | None = None, mean_uncertainty: bool = False,
-                    progress=None) -> Population:
+                    progress=None, executor=None) -> Population:
     """Draw ``n`` individuals; write them to ``out`` (CSV or Parquet, by ``fmt`` or the suffix) with a
     sidecar ``out + '.json'``, or keep them in memory as a DataFrame when ``out`` is None.
-    ``progress(chunks_done, chunks_total, individuals_done)`` is called after each chunk."""
+    ``progress(chunks_done, chunks_total, individuals_done)`` is called after each chunk. ``executor``
+    (a concurrent.futures Executor, or a distributed engine's equivalent) runs the chunks instead of a
+    pool of ``workers`` local processes; the bytes are the same either way."""
     if not isinstance(n, (int, np.integer)) or n < 1:
         raise PopulationError(f"n must be a positive whole number, got {n!r}")
     if not isinstance(seed, (int, np.integer)) or seed < 0:
@@ -129,7 +138,7 @@ def draw_population(spec: PopulationSpec, n: int, seed: int, *, out=None, fmt: s
         elif fmt == "csv":
             handle = open(tmp, "wb")
             handle.write((",".join(names) + "\n").encode())
-        for i, (result, block_stats) in enumerate(_results(spec, means, seed, chunks, fmt, workers)):
+        for i, (result, block_stats) in enumerate(_results(spec, means, seed, chunks, fmt, workers, executor)):
             start = chunks[i][0][0] * GRID
             if fmt == "csv":
                 handle.write(result)
