@@ -53,6 +53,8 @@ def summary(pop) -> list[str]:
         lines.append(f"{len(fixed)} held fixed (no SD stored): {', '.join(fixed)}"
                      + ("; --without-sd default-cv draws them with the default CV" if sc["without_sd"] == "fixed"
                         else ""))
+    if "body_mass" in fixed:
+        lines.append("body mass held at one value: --body-mass-cv or --body-mass-range lets it vary")
     if sc["filled"]:
         lines.append(f"filled across species (allometric): {', '.join(sc['filled'])}")
     if sc["in_rest_of_body"]:
