@@ -337,3 +337,21 @@ def test_a_distributed_engine_runs_the_grid_unchanged(toy_store):
     matrix = np.concatenate([m for m, _ in blocks])
     local = toy_store.population("mouse", n, seed, workers=1).frame
     np.testing.assert_array_equal(matrix, local.drop(columns="individual").to_numpy())
+
+
+def test_a_set_without_room_and_a_balance_that_cannot_be_met_are_refused(toy_store, monkeypatch):
+    from bodyplan.api.population import sample
+    from bodyplan.api.population.spec import _check_room
+
+    spec = population_spec(toy_store, "mouse")
+    muscle = next(v for v in spec.volumes if v.column == "muscle.volume")
+    muscle.mean += 0.3  # the named organs now outweigh the body
+    with pytest.raises(PopulationError, match="no room for rest_of_body"):
+        _check_room(spec.volumes, spec.flows)
+    muscle.mean -= 0.3
+    monkeypatch.setattr(sample, "MAX_REDRAWS", 0)  # any individual that needs a redraw now fails
+    tight = population_spec(toy_store, "mouse", balance="redraw")
+    next(v for v in tight.volumes if v.column == "adipose.volume").sd = 0.2  # wide: some draws break the balance
+    means = sample.population_means(tight, 1, False)
+    with pytest.raises(PopulationError, match="still have more named mass than body mass"):
+        sample.draw_block(tight, means, 1, 0, GRID)

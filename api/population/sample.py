@@ -47,7 +47,8 @@ def scipy_distribution(var: Variable):
         mu, sigma = lognormal_parameters(var.mean, var.sd)
         return stats.lognorm(s=sigma, scale=math.exp(mu))
     if var.distribution == "beta":
-        return stats.beta(*beta_parameters(var.mean, var.sd))
+        share = var.density or 1.0
+        return stats.beta(*beta_parameters(var.mean * share, var.sd * share), scale=1 / share)
     if var.distribution == "uniform":
         return stats.uniform(loc=var.low, scale=var.high - var.low)
     raise ValueError(f"{var.column} is held fixed")
@@ -62,8 +63,9 @@ def draw(var: Variable, rng: np.random.Generator, size: int, mean: float | None 
     if var.distribution == "lognormal":
         mu, sigma = lognormal_parameters(m, sd)
         return np.exp(mu + sigma * rng.standard_normal(size))
-    if var.distribution == "beta":
-        return rng.beta(*beta_parameters(m, sd), size)
+    if var.distribution == "beta":  # a volume's share is its mass share of body mass: volume × density
+        share = var.density or 1.0
+        return rng.beta(*beta_parameters(m * share, sd * share), size) / share
     if var.distribution == "uniform":
         return rng.uniform(var.low, var.high, size)
     raise ValueError(f"unknown distribution {var.distribution!r}")

@@ -329,13 +329,27 @@ def population_spec(store, species: str, *, life_stage: str = "adult", sex: str 
     for var in variables:
         _check_distribution(var)
     _check_distribution(body)
+    _check_room([v for v in variables if v.parameter == "volume"], [v for v in variables if v.parameter == "blood_flow"])
     return PopulationSpec(species, life_stage, sex, ps.layout.name, fill, body, variables, [*comps, REST], pulmonary,
                           in_rest, filled, without_sd, balance)
 
 
+def _check_room(volumes: list[Variable], flows: list[Variable]) -> None:
+    """The mean individual must fit its own body mass and cardiac output, or no draw can be balanced."""
+    mass = sum(v.mean * v.density for v in volumes)
+    if mass >= 1:
+        raise PopulationError(f"the named compartments' mean masses are {mass:.3g} of body mass: no room for "
+                              "rest_of_body; check the parameter set (bodyplan params) before drawing from it")
+    share = sum(v.mean for v in flows)
+    if share > 1:
+        raise PopulationError(f"the named systemic flows' means are {share:.3g} of cardiac output: above the whole; "
+                              "check the parameter set (bodyplan params) before drawing from it")
+
+
 def _check_distribution(var: Variable) -> None:
-    if var.distribution == "beta" and not (0 < var.mean < 1 and var.sd ** 2 < var.mean * (1 - var.mean)):
-        raise PopulationError(f"{var.column}: a share with mean {var.mean:.4g} cannot have SD {var.sd:.4g} "
+    k = var.density or 1.0  # a volume is a share of body mass through its density
+    if var.distribution == "beta" and not (0 < var.mean * k < 1 and (var.sd * k) ** 2 < var.mean * k * (1 - var.mean * k)):
+        raise PopulationError(f"{var.column}: a share with mean {var.mean * k:.4g} cannot have SD {var.sd * k:.4g} "
                               "(a beta distribution needs SD² < mean·(1 − mean))")
     if var.distribution in ("lognormal", "fixed") and not var.mean > 0:
         raise PopulationError(f"{var.column}: mean {var.mean!r} is not positive")
