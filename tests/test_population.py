@@ -355,3 +355,29 @@ def test_a_set_without_room_and_a_balance_that_cannot_be_met_are_refused(toy_sto
     means = sample.population_means(tight, 1, False)
     with pytest.raises(PopulationError, match="still have more named mass than body mass"):
         sample.draw_block(tight, means, 1, 0, GRID)
+
+
+def test_cardiac_output_follows_the_species_own_power_law(store_from_tree, tmp_path_factory):
+    """With absolute cardiac outputs at body masses spanning two-fold, cardiac output scales with the
+    species' own fitted exponent (checked against scipy.stats.linregress on log-log) rather than per kg."""
+    import shutil
+
+    tree = tmp_path_factory.mktemp("co_fit") / "population_toy"
+    shutil.copytree(TOY, tree)
+    rows = [(0.02, 0.80), (0.035, 1.24), (0.05, 1.59)]  # invented for tests
+    with open(tree / "values" / "toypop2026b.csv", "a", encoding="utf-8") as fh:
+        for i, (mass, co) in enumerate(rows):
+            fh.write(f"co{i},mouse,adult,,mixed,,whole_body,cardiac_output,{co},L/h,sd,{co * 0.15:.4f},,,8,"
+                     f"{mass} kg,measured,Table 2,no,,invented for tests: cardiac output at another body mass\n")
+    store = store_from_tree(tree)
+    spec = population_spec(store, "mouse", body_mass_cv=0.2)
+    co = next(v for v in spec.variables if v.column == "cardiac_output")
+    masses = [0.025, 0.025, *(m for m, _ in rows)]
+    values = [0.9, 1.1, *(c for _, c in rows)]
+    expected = stats.linregress(np.log10(masses), np.log10(values)).slope
+    assert co.exponent == pytest.approx(expected, rel=1e-9) and abs(co.exponent - 1) > 0.1
+    frame = store.population("mouse", 20_000, 5, body_mass_cv=0.2, workers=1).frame
+    at_reference = frame["cardiac_output"] / (frame["body_mass"] / spec.body_mass.mean) ** co.exponent
+    assert abs(at_reference.mean() - co.mean) <= Z * co.sd / math.sqrt(20_000)
+    per_kg = frame["cardiac_output"] / frame["body_mass"]
+    assert stats.spearmanr(frame["body_mass"], per_kg).statistic < -0.1  # smaller animals: more per kg

@@ -227,6 +227,7 @@ def build_sidecar(spec: PopulationSpec, n: int, seed: int, means: dict, stats: l
         "columns": [{"column": "individual", "unit": ""}] + [{"column": c, "unit": u} for c, u in spec.columns()],
         "variables": variables,
         "in_rest_of_body": spec.in_rest,
+        "not_in_output": spec.missing,
         "mean_uncertainty": ("each mean drawn once for this population from its predictive distribution for a "
                              "new group of animals (SD² = tau² + SE² of the DerSimonian–Laird pool)"
                              if mean_uncertainty else "not sampled: every individual is drawn around the pooled "

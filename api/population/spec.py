@@ -48,7 +48,7 @@ class Variable:
     sd: float | None
     distribution: str  # lognormal, beta, uniform, fixed
     sd_from: str  # where the spread comes from, in words
-    marked: str = ""  # "default_cv" or "fixed" when no stored SD stands behind the spread
+    marked: str = ""  # "default_cv", "fixed" or "given" (by the user) when no stored SD stands behind the spread
     low: float | None = None  # uniform bounds
     high: float | None = None
     sources: tuple[str, ...] = ()  # of the mean
@@ -79,6 +79,7 @@ class PopulationSpec:
     compartments: list[str]  # model compartments in order (rest_of_body last)
     pulmonary: list[str]  # compartments whose flow is the cardiac output
     in_rest: list[dict] = field(default_factory=list)  # gaps whose share stays in rest_of_body
+    missing: list[dict] = field(default_factory=list)  # whole-body gaps: columns not in the output
     filled: list[str] = field(default_factory=list)  # columns whose mean is an allometric fill
     without_sd: str = "fixed"
     balance: str = "redraw"
@@ -198,13 +199,13 @@ def _body_mass_variable(ps, resolver, centre, cv, mass_range, without_sd) -> Var
             raise PopulationError(f"body mass range must be two positive masses, low < high; got {mass_range!r}")
         return Variable("body_mass", "body_mass", "whole_body", "kg", "kg", (low + high) / 2,
                         (high - low) / math.sqrt(12), "uniform", "uniform over the range given by the user",
-                        low=low, high=high, mean_origin="given", mean_method="given by the user")
+                        marked="given", low=low, high=high, mean_origin="given", mean_method="given by the user")
     if cv is not None:
         if not cv >= 0:
             raise PopulationError(f"body mass CV must be ≥ 0, got {cv!r}")
         return Variable("body_mass", "body_mass", "whole_body", "kg", "kg", centre, cv * centre,
                         "lognormal" if cv > 0 else "fixed", f"CV {cv:g} given by the user",
-                        sources=cell.sources, mean_origin=cell.origin, mean_method=cell.method)
+                        marked="given", sources=cell.sources, mean_origin=cell.origin, mean_method=cell.method)
     spread = (*_row_cvs(resolver.body_mass), *_mean_uncertainty(resolver.body_mass)) \
         if cell.origin != "given" else _NONE
     return _variable("body_mass", "body_mass", "whole_body", "kg", "kg", centre, cell, spread, without_sd, 0,
@@ -261,9 +262,11 @@ def population_spec(store, species: str, *, life_stage: str = "adult", sex: str 
                     (*_row_cvs(co_res), *_mean_uncertainty(co_res)), without_sd, default_cv, "lognormal")
     cov.exponent = exponent
     variables.append(cov)
+    missing = []
     for name in ("gfr", "hematocrit"):
         cell = ps.physiology[name]
         if cell.origin == "gap":
+            missing.append({"column": name, "reason": cell.reason})
             continue
         res = resolver.resolve(name)
         fraction = name == "hematocrit"
@@ -331,7 +334,7 @@ def population_spec(store, species: str, *, life_stage: str = "adult", sex: str 
     _check_distribution(body)
     _check_room([v for v in variables if v.parameter == "volume"], [v for v in variables if v.parameter == "blood_flow"])
     return PopulationSpec(species, life_stage, sex, ps.layout.name, fill, body, variables, [*comps, REST], pulmonary,
-                          in_rest, filled, without_sd, balance)
+                          in_rest, missing, filled, without_sd, balance)
 
 
 def _check_room(volumes: list[Variable], flows: list[Variable]) -> None:

@@ -45,8 +45,11 @@ def summary(pop) -> list[str]:
     variables = sc["variables"]
     stored = [v["column"] for v in variables if v["distribution"] != "fixed" and not v["marked"]]
     default = [v["column"] for v in variables if v["marked"] == "default_cv"]
-    fixed = [v["column"] for v in variables if v["marked"] == "fixed" or v["distribution"] == "fixed"]
+    fixed = [v["column"] for v in variables if v["distribution"] == "fixed"]
+    given = [f"{v['column']} ({v['sd_from']})" for v in variables if v["marked"] == "given" and v["distribution"] != "fixed"]
     lines = [f"{len(stored)} drawn with a stored between-animal SD: {', '.join(stored) or 'none'}"]
+    if given:
+        lines.append("drawn as given: " + ", ".join(given))
     if default:
         lines.append(f"{len(default)} drawn with the default CV (common practice, no source): {', '.join(default)}")
     if fixed:
@@ -59,6 +62,8 @@ def summary(pop) -> list[str]:
         lines.append(f"filled across species (allometric): {', '.join(sc['filled'])}")
     if sc["in_rest_of_body"]:
         lines.append("gaps, their share kept in rest_of_body: " + ", ".join(r["column"] for r in sc["in_rest_of_body"]))
+    if sc["not_in_output"]:
+        lines.append("gaps, not in the output: " + ", ".join(r["column"] for r in sc["not_in_output"]))
     bal = sc["balance"]
     shifts = ", ".join(f"{s['column']} mean {s['mean']:+.1%}, sd {s['sd'] or 0:+.1%}" for s in bal["largest_shifts"])
     lines.append(f"balance ({pop.spec.balance}): volumes of {bal['volumes_touched_share']:.1%} and flows of "
