@@ -150,7 +150,8 @@ def _lumped(parts: list[tuple[float, object]]) -> tuple[float | None, int, int |
     se = [u[0] for _, _, u in pieces]
     tau = [u[1] for _, _, u in pieces]
     rel = lambda xs: None if None in xs else math.sqrt(sum((m * x) ** 2 for (m, _), x in zip(parts, xs))) / total  # noqa: E731
-    return (cv, sum(c[1] for _, c, _ in pieces), None if None in animals else sum(animals),
+    # the parts are often weighed in the same animals: the sum rests on at least the fewest of them
+    return (cv, sum(c[1] for _, c, _ in pieces), None if None in animals else min(animals),
             tuple(dict.fromkeys(s for _, c, _ in pieces for s in c[3])), rel(se), rel(tau))
 
 
