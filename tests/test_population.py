@@ -381,3 +381,13 @@ def test_cardiac_output_follows_the_species_own_power_law(store_from_tree, tmp_p
     assert abs(at_reference.mean() - co.mean) <= Z * co.sd / math.sqrt(20_000)
     per_kg = frame["cardiac_output"] / frame["body_mass"]
     assert stats.spearmanr(frame["body_mass"], per_kg).statistic < -0.1  # smaller animals: more per kg
+
+
+@settings(max_examples=15, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1), n=st.integers(1, 3 * GRID), cv=st.floats(0.05, 0.6),
+       rule=st.sampled_from(["redraw", "rescale"]))
+def test_any_seed_size_and_spread_keeps_the_balances(real_store, seed, n, cv, rule):
+    pop = real_store.population("dog", n, seed, without_sd="default_cv", default_cv=cv, balance=rule,
+                                workers=1)
+    assert len(pop.frame) == n and pop.frame["individual"].tolist() == list(range(n))
+    assert_balanced(pop.frame, pop)

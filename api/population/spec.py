@@ -249,7 +249,8 @@ def population_spec(store, species: str, *, life_stage: str = "adult", sex: str 
         raise PopulationError(f"{species} ({life_stage}) has no stored body mass; give one (body_mass=, --body-mass)")
     if ps.cardiac_output.origin == "gap":
         raise PopulationError(f"{species} ({life_stage}) has no cardiac output"
-                              + ("" if fill == "allometric" else "; try fill='allometric' (--fill allometric)")
+                              + (", and too few species of this life stage have one to fill it across species"
+                                 if fill == "allometric" else "; try fill='allometric' (--fill allometric)")
                               + ": flows cannot be drawn without it")
     bm = ps.body_mass.value
     resolver = Resolver(store, species, life_stage, sex)
