@@ -113,6 +113,12 @@ class Store:
 
         return partition_coefficients(self, species, compounds, **options)
 
+    def population(self, species: str, n: int, seed: int, **options):
+        """Virtual individuals drawn from the stored variability; see :func:`bodyplan.api.population.population`."""
+        from .population import population
+
+        return population(self, species, n, seed, **options)
+
     def allometry(self, quantity: str, **options):
         """Cross-species power-law fit; see :func:`bodyplan.api.allometry.allometry`."""
         from .allometry import allometry

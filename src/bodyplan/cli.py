@@ -27,6 +27,7 @@ COMMANDS = {  # command name → "module:function" under bodyplan.commands
     "diff": "curator:diff_cmd",
     "export": "curator:export_cmd",
     "kp": "partition:kp_cmd",
+    "population": "population:population_cmd",
 }
 
 
