@@ -16,12 +16,14 @@ from collections import defaultdict
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 
-from ..schema.model import FLUID_VOLUME, PARAMETERS, VESSEL_ORGAN, body_plan, routes, summable_parts
+from ..schema.model import (FLUID_VOLUME, PARAMETERS, PARTS_FOR_THE_WHOLE, REFERENCE_HEIGHT_CM, VESSEL_ORGAN,
+                            body_plan, routes, summable_parts)
 from .pooling import Estimate, pool
 
 ROW_COLUMNS = ("source_id, row_id, compartment_id, quantity_id, normalisation, value_canonical, sd_canonical, "
-               "n, subject_body_mass_kg, sex, strain, age, verified, file, line")
-SAME_SUBJECTS = ("source_id", "sex", "strain", "age")  # rows of one source describing the same animals
+               "n, subject_body_mass_kg, sex, strain, age, verified, file, line, group_id, part_id, method_id, "
+               "class_id, denominator")
+SAME_SUBJECTS = ("source_id", "group_id")  # rows of one source describing the same animals
 PER_TISSUE = "blood_flow per kg tissue"  # the route of a flow given per mass of its tissue
 WITHIN_SPECIES_POINTS, WITHIN_SPECIES_SPAN = 3, 2.0  # subjects' masses needed to scale within a species
 SAME_BODY_WEIGHT = 0.02  # relative difference under which rows describe the requested body weight
@@ -75,8 +77,9 @@ class Resolver:
     """All rows of one species, stage and sex, and the rules turning them into estimates."""
 
     def __init__(self, store, species: str, life_stage: str = "adult", sex: str | None = None,
-                 verified_only: bool = False):
+                 verified_only: bool = False, animal_class: str | None = None, all_methods: bool = False):
         self.store, self.species, self.life_stage, self.sex = store, species, life_stage, sex
+        self.animal_class, self.all_methods = animal_class, all_methods
         self.target_mass: float | None = None  # the set's body mass, for within-species scaling
         sql = (f"SELECT {ROW_COLUMNS} FROM curated_values WHERE species_id = ? AND life_stage_id = ? "
                "AND value_canonical IS NOT NULL" + (" AND verified = 1" if verified_only else ""))
@@ -84,11 +87,135 @@ class Resolver:
         if sex:
             sql += " AND sex IN (?, 'mixed', 'unknown')"
             params.append(sex)
+        if animal_class:  # rows of that class, and rows that name no class (said on the set)
+            sql += " AND (class_id = ? OR class_id IS NULL)"
+            params.append(animal_class)
         self.all_rows = [dict(r) for r in store.query(sql + " ORDER BY source_id, line", params)]
+        self.left_out: dict[tuple[str, str], str] = {}  # (source, row id) → why pooling leaves the row out
         self.groups: dict[tuple[str, str], list[dict]] = defaultdict(list)
-        for r in self.all_rows:
+        for r in self._what_counts(self.all_rows):
             self.groups[(r["quantity_id"], r["compartment_id"])].append(r)
         self._co_cache: dict[float, Resolved] = {}
+
+    # ---- which rows count: parts, methods, reprints, the same animals once -------------------------
+    def _what_counts(self, rows: list[dict]) -> list[dict]:
+        """The rows pooling may use. A part that is not the whole (contents, one side, a segment …), a
+        method not accepted for this animal and quantity, a reprint of a source that is itself here, a
+        group whose animals another row already counts, a fraction of empty body without its source's
+        ratio: each is left out, and ``left_out`` says why (trace shows it)."""
+        kept = []
+        present = {(r["source_id"], r["quantity_id"], r["compartment_id"]) for r in rows}
+        for r in rows:
+            why = self._not_for_pooling(r, present)
+            if why:
+                self.left_out[(r["source_id"], r["row_id"])] = why
+            else:
+                kept.append(r)
+        by_measure: dict[tuple, list[dict]] = defaultdict(list)
+        for r in kept:
+            by_measure[(r["source_id"], r["quantity_id"], r["compartment_id"], r["normalisation"])].append(r)
+        counted = []
+        for (source, *_), same in by_measure.items():
+            keep = self._independent_groups(source, {r["group_id"] for r in same})
+            seen: set[str] = set()
+            for r in same:
+                if r["group_id"] not in keep:
+                    self.left_out[(source, r["row_id"])] = (f"group {r['group_id']} overlaps another group of "
+                                                            "this source that is counted (groups.csv)")
+                elif r["group_id"] in seen:
+                    self.left_out[(source, r["row_id"])] = (f"the same animals (group {r['group_id']}) are "
+                                                            "counted by an earlier row of this source")
+                else:
+                    seen.add(r["group_id"])
+                    counted.append(r)
+        return counted
+
+    def _not_for_pooling(self, r: dict, present: set) -> str:
+        if r["part_id"] not in PARTS_FOR_THE_WHOLE:
+            return f"part {r['part_id']}: not the whole {r['compartment_id']}"
+        if not self.all_methods and r["method_id"] and not self._accepted(r["method_id"], r["quantity_id"]):
+            return f"method {r['method_id']} is not accepted for {r['quantity_id']} here (vocab/methods.csv)"
+        original = self._derived_from.get(r["source_id"])
+        if original and (original, r["quantity_id"], r["compartment_id"]) in present:
+            return f"reprints {original}, which is counted instead"
+        if r["denominator"] != "live_body" and self._body_ratio(r) is None:
+            return f"a share of {r['denominator'].replace('_', ' ')} mass without its source's ratio to live mass"
+        return ""
+
+    @cached_property
+    def _methods(self) -> dict[str, dict]:
+        return {r["id"]: dict(r) for r in self.store.query("SELECT id, accepted, not_accepted_in FROM methods")}
+
+    def _accepted(self, method: str, quantity: str) -> bool:
+        """vocab/methods.csv: ``accepted``, and ``not_accepted_in`` scopes (taxon class or species, with an
+        optional ``:quantity``) where an otherwise accepted method is refused."""
+        m = self._methods.get(method)
+        if m is None:
+            return True
+        if m["accepted"] != "yes":
+            return False
+        for scope in (m["not_accepted_in"] or "").split():
+            who, _, what = scope.partition(":")
+            if who in self.plan | {self.species} and what in ("", quantity):
+                return False
+        return True
+
+    @cached_property
+    def _derived_from(self) -> dict[str, str]:
+        return {r["id"]: r["derived_from"] for r in self.store.query(
+            "SELECT id, derived_from FROM sources WHERE derived_from IS NOT NULL")}
+
+    @cached_property
+    def _relations(self) -> dict[str, list[tuple[str, frozenset[str]]]]:
+        out: dict[str, list] = defaultdict(list)
+        for r in self.store.query("SELECT source_id, group_id, contains FROM groups ORDER BY rowid"):
+            out[r["source_id"]].append((r["group_id"], frozenset(r["contains"].split())))
+        return out
+
+    def _independent_groups(self, source: str, present: set[str]) -> set[str]:
+        """The groups whose animals are counted once: a group present drops its subgroups; among the
+        subgroups of an absent group, one way of splitting it (the first declared with rows)."""
+        relations = self._relations.get(source, [])
+        keep = set(present)
+
+        def below(group: str) -> set[str]:
+            found: set[str] = set()
+            for parent, children in relations:
+                if parent == group:
+                    for child in children:
+                        found |= {child} | below(child)
+            return found
+
+        for group in list(keep):
+            if group in keep:
+                keep -= below(group)
+        chosen: dict[str, frozenset[str]] = {}
+        for parent, children in relations:
+            if parent in keep or not children & keep:
+                continue
+            if parent not in chosen:
+                chosen[parent] = children
+            elif children != chosen[parent]:
+                keep -= children - chosen[parent]
+        return keep
+
+    def _read_first(self, rows: list[dict]) -> list[dict]:
+        """Rows read in their source text stand for a parameter whenever there are any; rows recalled
+        from memory are used only where nothing read exists (and trace says which were set aside)."""
+        read = [r for r in rows if r["verified"]]
+        if not read or len(read) == len(rows):
+            return rows
+        for r in rows:
+            if not r["verified"]:
+                self.left_out[(r["source_id"], r["row_id"])] = "recalled, not read: rows read in their source exist"
+        return read
+
+    def _body_ratio(self, row: dict) -> float | None:
+        """A source's own empty-body (or carcass) to live body mass ratio, for the same animals."""
+        quantity = {"empty_body": "empty_body_mass_fraction", "carcass": "carcass_mass_fraction"}.get(row["denominator"])
+        ratios = [r["value_canonical"] for r in self.all_rows if r["quantity_id"] == quantity
+                  and r["source_id"] == row["source_id"] and r["group_id"] in (row["group_id"], "all")]
+        return ratios[0] if ratios else None
 
     @cached_property
     def plan(self) -> frozenset[str]:
@@ -102,7 +229,7 @@ class Resolver:
     @cached_property
     def body_mass(self) -> Resolved:
         rows = [dict(r, _value=r["value_canonical"], _sd=r["sd_canonical"], _route="body_mass")
-                for r in self.rows("body_mass", "whole_body")]
+                for r in self._read_first(self.rows("body_mass", "whole_body"))]
         if rows:  # body mass rows are themselves the subjects' body mass
             estimate = _pool(rows)
             return Resolved(estimate, rows, verified_share=_verified_share(rows, estimate))
@@ -182,7 +309,8 @@ class Resolver:
                 candidates.append(self._routed(r, quantity, per if by_volume else per / density))
         if not candidates:
             return self._from_parts(compartment, self.volume_per_kg, "volume, mass or mass fraction")
-        rows = [r for r in _one_route_per_source(candidates, preference) if not math.isnan(r["_value"])]
+        rows = [r for r in _one_route_per_source(self._read_first(candidates), preference)
+                if not math.isnan(r["_value"])]
         if not rows:
             return _gap(f"{compartment} masses lack the subjects' body mass")
         by_mass = [r for r in rows if not self._is_volume(r["_route"])]
@@ -194,17 +322,49 @@ class Resolver:
         return resolved
 
     def _routed(self, row: dict, route: str, factor: float) -> dict:
+        if row["denominator"] != "live_body":  # a share of empty body mass × the source's empty/live ratio
+            factor *= self._body_ratio(row)
         return dict(row, _route=route, _value=row["value_canonical"] * factor,
                     _sd=None if row["sd_canonical"] is None else row["sd_canonical"] * factor)
 
     def _per_body_mass(self, rows: list[dict], route: str) -> list[dict]:
+        """Rows as per kg body mass: absolute over the subjects' mass, per m² through their body surface."""
         out = []
         for r in rows:
-            per = 1.0 if r["normalisation"] == "body_mass" else 1.0 / self.subject_mass(r)
-            routed = self._routed(r, route, per)
+            if r["normalisation"] == "body_surface":
+                per, how = self._surface_per_kg(r)
+                if per is None:
+                    continue
+                routed = dict(self._routed(r, route, per), _over=how)
+            else:
+                per = 1.0 if r["normalisation"] == "body_mass" else 1.0 / self.subject_mass(r)
+                routed = self._routed(r, route, per)
             if not math.isnan(routed["_value"]):
                 out.append(routed)
         return out
+
+    @cached_property
+    def _surface_formulas(self) -> list[dict]:
+        return [dict(r) for r in self.store.query("SELECT species, formula, k, preferred, source FROM body_surface")]
+
+    def _surface_per_kg(self, row: dict) -> tuple[float | None, str]:
+        """m² of body surface per kg of the row's subjects (vocab/body_surface.csv, the species' preferred
+        formula; a formula that needs a height takes the species' reference height)."""
+        from ..ingest.body_surface import NEEDS_HEIGHT, BodySurfaceError, body_surface_area
+
+        mass = self.subject_mass(row)
+        mine = [f for f in self._surface_formulas if f["species"] == self.species]
+        if math.isnan(mass) or not mine:
+            return None, ""
+        formula = next((f for f in mine if f["preferred"] == "yes"), mine[0])
+        height = REFERENCE_HEIGHT_CM.get(self.species) if formula["formula"] in NEEDS_HEIGHT else None
+        try:
+            area = body_surface_area(self._surface_formulas, self.species, f"{mass} kg",
+                                     None if height is None else f"{height} cm").to("m**2").magnitude
+        except BodySurfaceError:
+            return None, ""
+        at = f" at the reference height {height:g} cm" if height else ""
+        return area / mass, f"per m² over the subjects' body surface ({formula['source']}{at})"
 
     def _resolved(self, rows: list[dict], notes: list[str]) -> Resolved:
         absolute = [r for r in rows if self._is_absolute(r)]
@@ -235,15 +395,16 @@ class Resolver:
     # ---- whole-body rates and blood fractions ------------------------------------------------
     def per_body_mass(self, quantity: str, compartment: str) -> Resolved:
         """A rate such as GFR per kg body weight, from absolute (over the subjects' mass) or per-kg rows."""
-        rows = [r for r in self.rows(quantity, compartment) if r["normalisation"] in ("none", "body_mass")]
-        rows = self._per_body_mass(rows, quantity)
+        rows = [r for r in self.rows(quantity, compartment) if r["normalisation"] in ("none", "body_mass",
+                                                                                        "body_surface")]
+        rows = self._per_body_mass(self._read_first(rows), quantity)
         if not rows:
             return _gap(f"no {quantity} per body mass or absolute stored for {self.species} ({self.life_stage})")
-        return self._resolved(rows, [])
+        return self._resolved(rows, sorted({r["_over"] for r in rows if "_over" in r}))
 
     def fraction(self, quantity: str, compartment: str) -> Resolved:
         """A dimensionless fraction such as hematocrit, pooled across sources."""
-        rows = [self._routed(r, quantity, 1.0) for r in self.rows(quantity, compartment)]
+        rows = [self._routed(r, quantity, 1.0) for r in self._read_first(self.rows(quantity, compartment))]
         if not rows:
             return _gap(f"no {quantity} stored for {self.species} ({self.life_stage})")
         return self._resolved(rows, [])
@@ -251,8 +412,10 @@ class Resolver:
     # ---- cardiac output ----------------------------------------------------------------------
     @cached_property
     def cardiac_output_rows(self) -> list[dict]:
-        rows = [r for r in self.rows("cardiac_output", "whole_body") if r["normalisation"] in ("none", "body_mass")]
-        return [dict(r, _mass=self.subject_mass(r)) for r in self._per_body_mass(rows, "cardiac_output")]
+        rows = [r for r in self.rows("cardiac_output", "whole_body")
+                if r["normalisation"] in ("none", "body_mass", "body_surface")]
+        return [dict(r, _mass=self.subject_mass(r)) for r in self._per_body_mass(self._read_first(rows),
+                                                                                 "cardiac_output")]
 
     def cardiac_output(self, body_mass: float) -> Resolved:
         """Cardiac output (L/h) at a body weight: the species' own per-kg data, or its own allometry."""
@@ -329,7 +492,7 @@ class Resolver:
                 return _gap(f"{compartment} flows are absolute and {self.species} has no cardiac output "
                             "to turn them into fractions")
             return self._from_parts(compartment, self.flow_fraction, "blood flow")
-        rows = _one_route_per_source(candidates, preference)
+        rows = _one_route_per_source(self._read_first(candidates), preference)
         notes = sorted({r["_over"] for r in rows if "_over" in r})
         return self._resolved(rows, notes)
 

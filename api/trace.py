@@ -71,17 +71,20 @@ def trace(store, species: str, quantity: str, compartment: str | None = None, *,
     if parameter is None:
         result.note = f"parameter sets do not use {quantity}; the rows are shown uncombined"
         return result
-    from .parameters import resolve_parameter  # the parameter set's own rules, so the numbers are its numbers
+    from .resolve import Resolver  # the parameter set's own rules, so the numbers are its numbers
 
-    declared = PARAMETERS[parameter]
+    declared, left_out = PARAMETERS[parameter], {}
     unit = declared.resolved_as
     places = [declared.compartment] if declared.compartment else \
         sorted(set(frame["compartment"]) if compartment is None else {compartment})
     for place in places:
-        resolved = resolve_parameter(store, species, place, parameter, life_stage=life_stage, sex=sex)
+        resolver = Resolver(store, species, life_stage, sex)
+        resolved = resolver.resolve(parameter, place)
+        left_out.update(resolver.left_out)
         result.combined.append(combination(place, parameter, unit, resolved))
     used = {(r["source"], r["row_id"]) for c in result.combined for r in c["rows_used"]}
     result.rows["used"] = [(s, r) in used for s, r in zip(result.rows["source"], result.rows["row_id"])]
+    result.rows["left_out"] = [left_out.get((s, r)) for s, r in zip(result.rows["source"], result.rows["row_id"])]
     return result
 
 

@@ -125,6 +125,12 @@ COMPOSITION = {
 STAGE_FALLBACK = {"lactating": ("adult", "pregnant"), "laying": ("adult",), "pregnant": ("adult",),
                   "senior": ("adult",), "adult": ("senior", "juvenile"), "juvenile": ("adult", "neonate"),
                   "neonate": ("juvenile",)}
+# Parts (vocab/parts.csv) whose number stands for the whole compartment; contents, an organ with its
+# blood or contents, one side, one half, a segment or one ventricle never do (they are other amounts).
+PARTS_FOR_THE_WHOLE = frozenset({"tissue", "wall", "whole_pair"})
+# Height used to turn a per-m² row of a species whose body surface formula needs one, when the row does
+# not give its subjects' height: ICRP Publication 89 reference adult male, 176 cm (from memory).
+REFERENCE_HEIGHT_CM = {"human": 176.0}
 WHOLE_BODY = ("body_mass", "cardiac_output", "gfr", "hematocrit")  # reported by every set, in this order
 COMPARTMENT = ("volume", "blood_flow")  # reported for every model compartment
 

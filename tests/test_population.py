@@ -121,9 +121,13 @@ def test_between_study_heterogeneity_is_kept_apart(toy_store):
 
 def test_without_sd_is_fixed_or_default_cv_and_marked(real_store):
     fixed = population_spec(real_store, "dog")
-    assert all(v.marked == "fixed" and v.distribution == "fixed" for v in fixed.variables)
+    without = [v for v in fixed.variables if not v.sd_rows]  # no stored between-animal SD behind it
+    assert without and all(v.marked == "fixed" and v.distribution == "fixed" for v in without)
+    assert all(v.distribution != "fixed" for v in fixed.variables if v.sd_rows)
     default = population_spec(real_store, "dog", without_sd="default_cv", default_cv=0.25)
-    drawn = [v for v in default.variables if v.parameter in ("volume", "blood_flow", "cardiac_output", "gfr")]
+    names = {v.column for v in without}
+    drawn = [v for v in default.variables if v.column in names
+             and v.parameter in ("volume", "blood_flow", "cardiac_output", "gfr")]
     assert drawn and all(v.marked == "default_cv" and v.cv == pytest.approx(0.25) for v in drawn)
     assert all("common practice, no source" in v.sd_from for v in drawn)
     hct = next(v for v in default.variables if v.column == "hematocrit")
@@ -367,8 +371,8 @@ def test_cardiac_output_follows_the_species_own_power_law(store_from_tree, tmp_p
     rows = [(0.02, 0.80), (0.035, 1.24), (0.05, 1.59)]  # invented for tests
     with open(tree / "values" / "toypop2026b.csv", "a", encoding="utf-8") as fh:
         for i, (mass, co) in enumerate(rows):
-            fh.write(f"co{i},mouse,adult,,mixed,,whole_body,cardiac_output,{co},L/h,sd,{co * 0.15:.4f},,,8,"
-                     f"{mass} kg,measured,Table 2,no,,invented for tests: cardiac output at another body mass\n")
+            fh.write(f"co{i},mouse,adult,,mixed,,,mass{i},whole_body,cardiac_output,,,{co},L/h,sd,{co * 0.15:.4f},,,,,"
+                     f"8,,{mass} kg,,measured,Table 2,no,,invented for tests: cardiac output at another body mass\n")
     store = store_from_tree(tree)
     spec = population_spec(store, "mouse", body_mass_cv=0.2)
     co = next(v for v in spec.variables if v.column == "cardiac_output")

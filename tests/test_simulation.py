@@ -425,12 +425,7 @@ def test_gaps_exported_on_request_are_nan_and_marked(toy_store):
 ICRP89_MALE_KG = {"kidney": 0.310, "heart": 0.330}
 
 
-@pytest.mark.parametrize("organ", [
-    "kidney",
-    pytest.param("heart", marks=pytest.mark.xfail(strict=True, reason=(
-        "the human heart volume pools 'heart with blood' rows (icrp2002 840 g and 620 g) with tissue-only "
-        "rows, so volume × density is 0.448 kg against 0.330 kg; reported to the data owner"))),
-])
+@pytest.mark.parametrize("organ", ["kidney", "heart"])
 def test_human_organ_masses_match_icrp89_reference_male(real_store, organ):
     ps = real_store.parameter_set("human", body_mass="73 kg")
     doc = libsbml.readSBMLFromString(ps.to_sbml())

@@ -88,7 +88,8 @@ def _trace_table(rows):
             else "(missing; see --format json)", "uncertainty": spread(r), "n": _num(r["n"]),
             "canonical": f"{_num(r['value_canonical'])} {r['unit_canonical']}" if pd.notna(r["value_canonical"])
             else "", "sd (canonical)": _num(r["sd_canonical"]), "verified": "yes" if r["verified"] else "no",
-            "used": ("yes" if r["used"] else "no") if "used" in r else "",
+            "used": ("yes" if r["used"] else f"no: {r['left_out']}" if r.get("left_out") else "no")
+            if "used" in r else "",
             "at": f"{r['file']}:{r['line']}"} for r in rows.to_dict("records")]
     columns = ["compartment", "source", "locator", "row", "sex", "reported", "uncertainty", "n", "canonical",
                "sd (canonical)", "verified", "used", "at"]
