@@ -15,9 +15,9 @@ from pathlib import Path
 
 from ..schema import descriptors
 
-TABLES = ["species", "life_stages", "compartments", "quantities", "sources", "curated_values", "build_info",
-          "input_files"]
-FORMATS = ["csv", "json", "parquet"]
+TABLES = ["species", "life_stages", "compartments", "quantities", "methods", "parts", "classes", "body_surface",
+          "sources", "groups", "curated_values", "build_info", "input_files"]
+FORMATS = ["csv", "json"]
 SQL_TYPES = {"INTEGER": "integer", "FLOAT": "number", "REAL": "number", "BOOLEAN": "boolean"}
 DROPPED = {"curated_values": {"id"}}  # the store's row number: identity is (source_id, row_id)
 
@@ -41,10 +41,18 @@ RENAMED = {"species_id": "species", "life_stage_id": "life_stage", "compartment_
            "quantity_id": "quantity"}
 FOREIGN = {
     "curated_values": [("source_id", "sources"), ("species_id", "species"), ("life_stage_id", "life_stages"),
-                       ("compartment_id", "compartments"), ("quantity_id", "quantities")],
+                       ("compartment_id", "compartments"), ("quantity_id", "quantities"), ("part_id", "parts"),
+                       ("method_id", "methods")],
     "compartments": [("part_of", "compartments")],
+    "parts": [("part_of", "parts")],
+    "groups": [("source_id", "sources")],
+    "classes": [("species", "species")],
+    "body_surface": [("species", "species")],
+    "sources": [("derived_from", "sources")],
 }
-PRIMARY = {"curated_values": ["source_id", "row_id"], "build_info": ["key"], "input_files": ["path"]}
+PRIMARY = {"curated_values": ["source_id", "row_id"], "build_info": ["key"], "input_files": ["path"],
+           "classes": ["species", "id"], "body_surface": ["species", "formula"],
+           "groups": ["source_id", "group_id", "contains"]}
 TABLE_DESCRIPTIONS = {
     "sources": "Sources: one BibTeX entry per curated file, with a formatted citation.",
     "curated_values": "Curated values: one row per value printed in a source, as reported and in canonical units.",
@@ -128,9 +136,6 @@ def export_store(store, out_dir: str | Path, fmt: str = "csv") -> Path:
     """Write every table of ``store`` to ``out_dir`` plus datapackage.json; returns the descriptor's path."""
     from .. import CAUTION, __version__
 
-    if fmt == "parquet":
-        raise ExportError("parquet export is not available (it would need pyarrow, which bodyplan does not "
-                          "install); use --format csv or --format json")
     if fmt not in ("csv", "json"):
         raise ExportError(f"unknown export format {fmt!r}; use csv or json")
     out = Path(out_dir)
