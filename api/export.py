@@ -14,6 +14,7 @@ import math
 from pathlib import Path
 
 from ..schema import descriptors
+from ..schema.columns import TABLE_DESCRIPTIONS, describe
 
 TABLES = ["species", "life_stages", "compartments", "quantities", "methods", "parts", "classes", "body_surface",
           "sources", "groups", "curated_values", "build_info", "input_files"]
@@ -21,24 +22,6 @@ FORMATS = ["csv", "json"]
 SQL_TYPES = {"INTEGER": "integer", "FLOAT": "number", "REAL": "number", "BOOLEAN": "boolean"}
 DROPPED = {"curated_values": {"id"}}  # the store's row number: identity is (source_id, row_id)
 
-# Columns of curated_values that are not curated columns themselves (or are renamed in the store).
-VALUE_DESCRIPTIONS = {
-    "source_id": "Citation key of the source (sources.id); the curated file's name.",
-    "row_id": "The row's id within its source file.",
-    "age_days": "The age converted to days.",
-    "quantity_kind": "absolute, fraction or ratio (from the quantity).",
-    "value_canonical": "The value converted to the canonical unit.",
-    "unit_canonical": "Canonical unit of the value (the quantity's unit, or its per-mass or per-surface form).",
-    "normalisation": "none, body_mass, tissue_mass or body_surface: what a per-unit value is per.",
-    "sd_canonical": "Standard deviation in the canonical unit, from sd, se and n, cv, or a ci95 and n.",
-    "low_canonical": "Lower bound in the canonical unit.",
-    "high_canonical": "Upper bound in the canonical unit.",
-    "subject_body_mass_kg": "Subjects' mean body mass in kg.",
-    "file": "Curated file the row came from.",
-    "line": "Line of the row in that file.",
-}
-RENAMED = {"species_id": "species", "life_stage_id": "life_stage", "compartment_id": "compartment",
-           "quantity_id": "quantity"}
 FOREIGN = {
     "curated_values": [("source_id", "sources"), ("species_id", "species"), ("life_stage_id", "life_stages"),
                        ("compartment_id", "compartments"), ("quantity_id", "quantities"), ("part_id", "parts"),
@@ -53,12 +36,6 @@ FOREIGN = {
 PRIMARY = {"curated_values": ["source_id", "row_id"], "build_info": ["key"], "input_files": ["path"],
            "classes": ["species", "id"], "body_surface": ["species", "formula"],
            "groups": ["source_id", "group_id", "contains"]}
-TABLE_DESCRIPTIONS = {
-    "sources": "Sources: one BibTeX entry per curated file, with a formatted citation.",
-    "curated_values": "Curated values: one row per value printed in a source, as reported and in canonical units.",
-    "build_info": "How the store was built: content hash, bodyplan version, hash of the input files.",
-    "input_files": "The curated files the store was built from, with their SHA-256.",
-}
 
 
 class ExportError(ValueError):
@@ -66,18 +43,7 @@ class ExportError(ValueError):
 
 
 def _description(table: str, column: str) -> str:
-    if table in descriptors.VOCABULARIES:
-        for spec in descriptors.VOCABULARIES[table]["fields"]:
-            if spec["name"] == column:
-                return spec["description"]
-    if table == "curated_values":
-        if column in VALUE_DESCRIPTIONS:
-            return VALUE_DESCRIPTIONS[column]
-        wanted = RENAMED.get(column, column)
-        for spec in descriptors.VALUES["fields"]:
-            if spec["name"] == wanted:
-                return spec["description"]
-    return ""
+    return describe(table, column).replace(" {units}", "").replace("{units}", "")
 
 
 def table_schema(store, table: str) -> dict:

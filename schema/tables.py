@@ -165,12 +165,12 @@ class Value(SQLModel, table=True):
     unit: str
     value_canonical: Optional[float] = None
     unit_canonical: str
-    normalisation: str  # none, body_mass, tissue_mass or body_surface
+    normalisation: str  # described in schema/columns.py, as every store-only column
     uncertainty: str
     spread: Optional[float] = None
     low: Optional[float] = None
     high: Optional[float] = None
-    sd_canonical: Optional[float] = None  # sd in the canonical unit, from sd, se·√n, cv or a ci95
+    sd_canonical: Optional[float] = None
     low_canonical: Optional[float] = None
     high_canonical: Optional[float] = None
     n: Optional[int] = None

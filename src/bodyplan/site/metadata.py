@@ -1,7 +1,7 @@
 """Generate the site's datasette metadata from the schema, the quantities vocabulary and the store.
 
-Curated columns reuse their descriptions in schema/descriptors.py; only columns that exist in the
-store alone (converted values, file positions, sources, build records) are described here.
+Column and table descriptions come from schema/columns.py, the one place they are written (the
+exported data package reads the same); this module adds facets, units in words and the page texts.
 """
 
 from __future__ import annotations
@@ -14,6 +14,7 @@ from pathlib import Path
 
 from .. import CAUTION
 from ..schema import descriptors
+from ..schema.columns import TABLE_DESCRIPTIONS, describe
 from .plugin import DATABASE, PLUGIN
 from .queries import QUERIES
 
@@ -21,60 +22,6 @@ from .queries import QUERIES
 # one click away as filters, and the species pages already split by life stage).
 FACETS = ["species_id", "quantity_id", "compartment_id"]
 
-# store column of curated_values → curated-file column whose description it keeps
-CURATED_COLUMN = {"species_id": "species", "life_stage_id": "life_stage", "compartment_id": "compartment",
-                  "quantity_id": "quantity", "row_id": "id", "class_id": "class", "group_id": "group",
-                  "part_id": "part", "method_id": "method"}
-
-TABLE_DESCRIPTIONS = {
-    "curated_values": "One row per value printed in a source, as reported and converted to the quantity's "
-                      "canonical unit, with its uncertainty, subjects, locator and verification flag.",
-    "sources": "The documents values come from: BibTeX entries with a formatted citation and DOI.",
-    "build_info": "How this store was built: content hash, build time and versions.",
-    "input_files": "Every curated file the store was built from, with its SHA-256 hash.",
-    "groups": descriptors.GROUPS["description"],
-}
-
-STORE_COLUMNS = {  # columns that exist only in the store
-    "curated_values": {
-        "id": "Row number in the store (stable only within one build).",
-        "source_id": "Citation key of the source (links to sources).",
-        "age_days": "The age converted to days.",
-        "quantity_kind": "absolute, fraction (0 to 1) or ratio, copied from the quantity.",
-        "unit_canonical": "Canonical unit the value was converted to. {units}",
-        "value_canonical": "The value converted to the canonical unit (unit_canonical says which, in words).",
-        "verified": "1 if the number was read in the source text, 0 if not (pages say so in words).",
-        "normalisation": "none, body_mass, tissue_mass or body_surface: what the canonical value is per.",
-        "sd_canonical": "Standard deviation in the canonical unit, from the sd, se × √n, cv or a 95% "
-                        "interval.",
-        "low_canonical": "Lower bound of a ci95 or range in the canonical unit.",
-        "high_canonical": "Upper bound of a ci95 or range in the canonical unit.",
-        "subject_body_mass_kg": "Subjects' mean body mass in kilograms.",
-        "file": "Curated file the row was read from.",
-        "line": "Line of that file.",
-    },
-    "sources": {
-        "id": "Citation key; also the name of the curated values file.",
-        "entry_type": "BibTeX entry type (article, book, techreport …).",
-        "author": "Authors as in the BibTeX entry.",
-        "title": "Title.",
-        "container": "Journal, book or publisher.",
-        "year": "Year of publication.",
-        "volume": "Volume.",
-        "pages": "Pages.",
-        "doi": "Digital Object Identifier; links to https://doi.org/.",
-        "citation": "Formatted one-line citation.",
-        "bibtex": "The BibTeX entry as curated.",
-        "note": "Note from the BibTeX entry.",
-        "derived_from": "The source whose numbers this one reprints (pooling uses the original).",
-    },
-    "groups": {"source_id": "Citation key of the source.", "group_id": "Group id used in the source's values file.",
-               "contains": "Its disjoint subgroups (space separated group ids).", "label": "The group in words.",
-               "note": "How the source splits the animals."},
-    "build_info": {"key": "What is recorded.", "value": "The record."},
-    "input_files": {"path": "Curated file, relative to the curated data folder.",
-                    "sha256": "SHA-256 hash of the file's bytes."},
-}
 
 
 # one factor of a unit between slashes: "kg", "m^2", "(100 g)", "(1.73 m^2)"
@@ -136,18 +83,14 @@ def _licence() -> tuple[str, str | None]:
 
 
 def column_descriptions(conn: sqlite3.Connection, table: str) -> dict[str, str]:
-    vocab = descriptors.VOCABULARIES.get(table)
-    curated = {f["name"]: f["description"] for f in (vocab or descriptors.VALUES)["fields"]}
-    store_only = STORE_COLUMNS.get(table, {})
     described = {}
     for (name,) in conn.execute(f"SELECT name FROM pragma_table_info('{table}')"):
-        text = store_only.get(name) or (curated.get(CURATED_COLUMN.get(name, name))
-                                        if vocab or table == "curated_values" else None)
+        text = describe(table, name)
         if table == "quantities" and name == "canonical_unit":
             text = f"{text} {units_sentence(conn, VOCABULARY_UNITS)}"
-        elif "{units}" in (text or ""):
+        elif "{units}" in text:
             text = text.format(units=units_sentence(conn, STORED_UNITS))
-        described[name] = (text or "").strip()
+        described[name] = text.strip()
     return described
 
 
