@@ -8,6 +8,8 @@ stored floats exactly.
 
 from __future__ import annotations
 
+from ..errors import BodyplanError
+
 import csv
 import json
 import math
@@ -53,7 +55,7 @@ TABLE_DESCRIPTIONS = {
 }
 
 
-class ExportError(ValueError):
+class ExportError(BodyplanError, ValueError):
     """An export that cannot be made as asked (an unsupported format, a missing library)."""
 
 

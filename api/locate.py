@@ -2,13 +2,15 @@
 
 from __future__ import annotations
 
+from ..errors import BodyplanError
+
 import hashlib
 import os
 from importlib.resources import files
 from pathlib import Path
 
 
-class StoreNotFoundError(FileNotFoundError):
+class StoreNotFoundError(BodyplanError, FileNotFoundError):
     """No store at the path given."""
 
 

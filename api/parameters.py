@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from ..errors import BodyplanError
+
 import json
 import math
 from dataclasses import dataclass, field
@@ -24,7 +26,7 @@ UNITS = {"SI": {"volume": ("L", 1.0), "blood_flow": ("L/h", 1.0), "gfr": ("L/h",
 PHYSIOLOGY = {"gfr": "whole_body", "hematocrit": "blood"}  # extra numbers a PBPK model usually needs
 
 
-class ParameterSetError(ValueError):
+class ParameterSetError(BodyplanError, ValueError):
     """A parameter-set request that cannot be answered as asked (unknown option, bad body weight)."""
 
 

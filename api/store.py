@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from ..errors import BodyplanError
+
 import sqlite3
 from pathlib import Path
 
@@ -20,7 +22,7 @@ FILTERS = {  # keyword → column of curated_values
 }
 
 
-class UnknownIdError(LookupError):
+class UnknownIdError(BodyplanError, LookupError):
     """A species, stage, quantity or compartment id the store does not know."""
 
 

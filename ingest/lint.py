@@ -10,6 +10,8 @@ fixed point: linting a linted file changes nothing.
 
 from __future__ import annotations
 
+from ..errors import BodyplanError
+
 import csv
 import io
 import re
@@ -24,7 +26,7 @@ QUANTITY_COLUMNS = {f["name"] for f in descriptors.VALUES["fields"]
                     if f.get("constraints", {}).get("pattern") == descriptors.QUANTITY_TEXT}
 
 
-class LintError(ValueError):
+class LintError(BodyplanError, ValueError):
     """A file too broken to rewrite safely (not UTF-8, a ragged row, an unknown column)."""
 
 

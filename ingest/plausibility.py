@@ -30,7 +30,7 @@ def check_ranges(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> 
             for row in out.to_dict("records"):
                 findings.warn(row["_file"], row["_line"], "value",
                               f"{row['value']} {row['unit']} lies outside the plausible range {low:g}..{high:g} {unit} "
-                              f"for {quantity}; check the unit and the number against the source")
+                              f"for {quantity}; check the unit and the number against the source", code="W301")
 
 
 def _sum_warnings(frame, quantity, compartments, findings, total_if_odd, message) -> None:
@@ -47,7 +47,7 @@ def _sum_warnings(frame, quantity, compartments, findings, total_if_odd, message
         total = total_if_odd(value[idx], place[idx])
         if total is not None:
             first = rows.iloc[idx[np.argmin(line[idx])]]
-            findings.warn(first["_file"], first["_line"], "value", message(first, total))
+            findings.warn(first["_file"], first["_line"], "value", message(first, total), code="W302")
 
 
 def check_sums(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> None:
@@ -166,7 +166,7 @@ def check_outliers(frame: pd.DataFrame, findings: Findings, factor: float = OUTL
                               f"{row['value']} {row['unit']} ({_fmt(row['_value_canonical'])} {row['_unit_canonical']}) "
                               f"is {how} {what} for {row['species']} {row['life_stage']} {row['compartment']} "
                               f"{row['quantity']}; check the number, its unit, the compartment, life stage and strain "
-                              "against the source")
+                              "against the source", code="W303")
 
 
 def check_unit_typos(frame: pd.DataFrame, findings: Findings) -> None:
@@ -215,7 +215,7 @@ def check_unit_typos(frame: pd.DataFrame, findings: Findings) -> None:
                               f"about {how} the median {_fmt(reference)} {row['_unit_canonical']} of "
                               f"{int(others.sum())} other {row['quantity']} row(s) of {row['species']} in this file, "
                               f"which use {other_unit!r}; is {unit!r} a typo for {other_unit!r}? check the unit in "
-                              "the source")
+                              "the source", code="W304")
 
 
 def check_plausibility(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> None:
