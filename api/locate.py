@@ -14,6 +14,12 @@ class StoreNotFoundError(BodyplanError, FileNotFoundError):
     """No store at the path given."""
 
 
+def sqlite_uri(path: str | os.PathLike, mode: str = "ro") -> str:
+    """A proper SQLite URI for ``path``: '#', '?', '%' and spaces in folder or file names are
+    percent-encoded, so they never cut the path short or create a stray file."""
+    return f"{Path(path).absolute().as_uri()}?mode={mode}"
+
+
 def bundled_data_dir() -> Path:
     return Path(str(files("bodyplan.data_curated")))
 

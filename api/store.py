@@ -9,7 +9,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from .locate import locate_store
+from .locate import locate_store, sqlite_uri
 
 FILTERS = {  # keyword → column of curated_values
     "species": "species_id",
@@ -31,7 +31,7 @@ class Store:
 
     def __init__(self, path: str | Path):
         self.path = Path(path)
-        self.conn = sqlite3.connect(f"file:{self.path}?mode=ro", uri=True, check_same_thread=False)
+        self.conn = sqlite3.connect(sqlite_uri(self.path, "ro"), uri=True, check_same_thread=False)
         self.conn.row_factory = sqlite3.Row
 
     def __repr__(self) -> str:

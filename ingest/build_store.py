@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import glob
 import hashlib
 import os
 import sqlite3
@@ -45,7 +46,7 @@ def check(root: str | Path, plausibility: bool = True) -> tuple[Findings, Curate
     return findings, tree, frame
 
 
-def _plain(text: str) -> str:
+def _without_braces(text: str) -> str:
     """BibTeX's protective braces removed, for text shown to people."""
     return text.replace("{", "").replace("}", "")
 
@@ -56,13 +57,13 @@ def format_citation(fields: dict) -> str:
                 else a.split(",")[0].strip() if "," in a else a.split()[-1] for a in authors]
     who = (surnames[0] + " et al." if len(surnames) > 2 else " & ".join(surnames)) or \
         fields.get("organization", fields.get("publisher", "Anonymous"))
-    where = _plain(fields.get("journal") or fields.get("booktitle") or fields.get("publisher") or "")
+    where = _without_braces(fields.get("journal") or fields.get("booktitle") or fields.get("publisher") or "")
     detail = where
     if fields.get("volume"):
         detail += f" {fields['volume']}"
     if fields.get("pages"):
         detail += f":{fields['pages'].replace('--', '–')}"
-    title = _plain(fields.get("title", "")).rstrip(".")
+    title = _without_braces(fields.get("title", "")).rstrip(".")
     text = f"{who} ({fields.get('year', 'n.d.')}). {title}. {detail}".strip()
     return text.rstrip(".") + "."
 
@@ -162,7 +163,8 @@ def _create_schema(path: Path) -> None:
     from sqlalchemy import create_engine
     from sqlmodel import SQLModel
 
-    engine = create_engine(f"sqlite:///{path}")
+    # the connection is made by sqlite3 itself: a '#' or '?' in the path must not pass through a URL
+    engine = create_engine("sqlite://", creator=lambda: sqlite3.connect(path))
     SQLModel.metadata.create_all(engine, tables=[t.__table__ for t in TABLES])
     engine.dispose()
 
@@ -191,8 +193,8 @@ def write_store(tree: CuratedTree, frame: pd.DataFrame, path: Path) -> tuple[str
         for src in sorted(tree.sources, key=lambda s: s["key"]):
             f = src["fields"]
             year = f.get("year", "")
-            source_rows.append((src["key"], src["type"], f.get("author"), _plain(f.get("title", "")) or None,
-                                _plain(f.get("journal") or f.get("booktitle") or f.get("publisher") or "") or None,
+            source_rows.append((src["key"], src["type"], f.get("author"), _without_braces(f.get("title", "")) or None,
+                                _without_braces(f.get("journal") or f.get("booktitle") or f.get("publisher") or "") or None,
                                 int(year) if year.isdigit() else None, f.get("volume"), f.get("pages"),
                                 f.get("doi"), format_citation(f), src["bibtex"], f.get("note")))
         _insert(conn, "sources", ["id", "entry_type", "author", "title", "container", "year", "volume", "pages",
@@ -227,6 +229,28 @@ def write_store(tree: CuratedTree, frame: pd.DataFrame, path: Path) -> tuple[str
     return digest, counts
 
 
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # another user's live process
+        return True
+    return True
+
+
+def remove_stale_temporaries(out: Path) -> list[Path]:
+    """Delete temporary stores of ``out`` left by builds that were killed: their name carries the pid
+    of the build that made them, and that process is gone. A build still running keeps its file."""
+    removed = []
+    for tmp in out.parent.glob(f".{glob.escape(out.name)}.*.tmp"):
+        pid = tmp.name[len(out.name) + 2:].split(".", 1)[0]
+        if not pid.isdigit() or not _alive(int(pid)):
+            tmp.unlink(missing_ok=True)
+            removed.append(tmp)
+    return removed
+
+
 def build(root: str | Path, out: str | Path, plausibility: bool = False) -> BuildResult:
     """Validate ``root`` and build the store at ``out``; on any error ``out`` is left as it was.
 
@@ -238,7 +262,8 @@ def build(root: str | Path, out: str | Path, plausibility: bool = False) -> Buil
         raise CuratedDataError(findings)
     out = Path(out)
     out.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{out.name}.", suffix=".tmp", dir=out.parent)
+    remove_stale_temporaries(out)
+    fd, tmp = tempfile.mkstemp(prefix=f".{out.name}.{os.getpid()}.", suffix=".tmp", dir=out.parent)
     os.close(fd)
     tmp_path = Path(tmp)
     try:

@@ -7,10 +7,10 @@ from pathlib import Path
 
 import click
 
-from ..output import emit, format_option, store_option
+from ..output import emit, force_option, format_option, guard_out, store_option
 
 
-def _data_dir(data_dir):
+def data_dir_or_bundled(data_dir) -> Path:
     if data_dir:
         return Path(data_dir)
     from ..api.locate import bundled_data_dir
@@ -18,17 +18,33 @@ def _data_dir(data_dir):
     return bundled_data_dir()
 
 
+def curated_inputs(root: Path) -> list[Path]:
+    """The parts of a curated tree a build reads (a store must never be written over them)."""
+    return [root / "vocab", root / "values", root / "sources.bib", root / "bib_parts", root / "layouts"]
+
+
+def _explain(ctx, _param, code):
+    if code is None or ctx.resilient_parsing:
+        return
+    from ..ingest.findings import explain
+
+    click.echo(explain(code))
+    ctx.exit(0)
+
+
 @click.command("check")
 @click.argument("data_dir", required=False, type=click.Path(file_okay=False))
 @click.option("--strict", is_flag=True, help="Treat warnings as errors (exit 1).")
+@click.option("--explain", metavar="CODE", callback=_explain, expose_value=False, is_eager=True,
+              help="Print what a finding code (the [R104] at the end of a line) means, and exit.")
 def check_cmd(data_dir, strict):
     """Validate curated files; exit 0 clean, 1 errors, 2 warnings only."""
     from ..ingest import check
 
-    root = _data_dir(data_dir)
+    root = data_dir_or_bundled(data_dir)
     findings, tree, frame = check(root)
     for finding in findings.sorted():
-        click.echo(str(finding))
+        click.echo(f"{finding} [{finding.code}]" if finding.code else str(finding))
     errors, warnings = len(findings.errors), len(findings.warnings)
     click.echo(f"{root}: {len(frame)} value rows in {len(tree.file_hashes)} files: "
                f"{errors} error(s), {warnings} warning(s)", err=True)
@@ -41,19 +57,22 @@ def check_cmd(data_dir, strict):
               help="Where to write the store.")
 @click.option("--warnings", "warnings", is_flag=True,
               help="Also print plausibility warnings (as bodyplan check does); slower on large trees.")
-def build_cmd(data_dir, out, warnings):
+@force_option
+def build_cmd(data_dir, out, warnings, force):
     """Validate, then build the store atomically (a failed build leaves OUT untouched)."""
     from ..ingest import CuratedDataError, build
 
+    root = data_dir_or_bundled(data_dir)
+    guard_out(out, kind="sqlite", inputs=curated_inputs(root), force=force)
     try:
-        result = build(_data_dir(data_dir), out, plausibility=warnings)
+        result = build(root, out, plausibility=warnings)
     except CuratedDataError as exc:
         for finding in exc.findings.sorted():
-            click.echo(str(finding), err=True)
+            click.echo(f"{finding} [{finding.code}]" if finding.code else str(finding), err=True)
         click.echo(f"error: {len(exc.findings.errors)} error(s); {out} left unchanged", err=True)
         sys.exit(1)
     for finding in result.warnings:
-        click.echo(str(finding), err=True)
+        click.echo(f"{finding} [{finding.code}]" if finding.code else str(finding), err=True)
     c = result.counts
     click.echo(f"built {result.path}: {c['curated_values']} values, {c['species']} species, "
                f"{c['sources']} sources; content hash {result.content_hash[:16]}")
