@@ -2,12 +2,11 @@
 
 from __future__ import annotations
 
-from ..errors import BodyplanError
-
 import hashlib
 import os
-from importlib.resources import files
 from pathlib import Path
+
+from ..errors import BodyplanError
 
 
 class StoreNotFoundError(BodyplanError, FileNotFoundError):
@@ -21,6 +20,8 @@ def sqlite_uri(path: str | os.PathLike, mode: str = "ro") -> str:
 
 
 def bundled_data_dir() -> Path:
+    from importlib.resources import files  # imported here: a command given a store never needs it
+
     return Path(str(files("bodyplan.data_curated")))
 
 

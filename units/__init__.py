@@ -45,14 +45,13 @@ def registry():
     global _registry
     if _registry is None:
         import pint
-        from importlib.resources import files
 
         options = dict(on_redefinition="raise", autoconvert_offset_to_baseunit=False)
         try:
             reg = pint.UnitRegistry(cache_folder=":auto:", **options)
         except OSError:  # no writable cache: parse the definitions every time
             reg = pint.UnitRegistry(**options)
-        reg.load_definitions(str(files(__package__) / "definitions.txt"))
+        reg.load_definitions(os.path.join(os.path.dirname(__file__), "definitions.txt"))
         _registry = reg
     return _registry
 
