@@ -83,12 +83,11 @@ def _vocab_rows(frame: pd.DataFrame, columns: list[str]) -> list[tuple]:
 
 def _text(column: pd.Series) -> list:
     """Cells (stripped when read) as a list, empty ones as None."""
-    cells = column.to_numpy(dtype=object, copy=True)
-    cells[cells == ""] = None
-    return cells.tolist()
+    return [cell if cell else None for cell in column.tolist()]
 
 
-def _value_rows(frame: pd.DataFrame) -> list[tuple]:
+def _value_columns(frame: pd.DataFrame) -> list[list]:
+    """The curated_values table column by column (hashed as columns, inserted as rows)."""
     frame = frame.sort_values(["_source", "_line"])
     strip = {c: _text(frame[c]) for c in
              ("id", "species", "life_stage", "age", "sex", "strain", "compartment", "quantity", "unit",
@@ -112,7 +111,8 @@ def _value_rows(frame: pd.DataFrame) -> list[tuple]:
         (frame["verified"] == "yes").astype(int).tolist(), strip["missing_reason"],
         strip["comment"], frame["_file"].tolist(), frame["_line"].astype(int).tolist(),
     ]
-    return list(zip(range(1, len(frame) + 1), *columns))  # the store's id first, as SELECT * gives it back
+    columns.insert(0, list(range(1, len(frame) + 1)))  # the store's id first, as SELECT * gives it back
+    return columns
 
 
 VALUE_COLUMNS = ["id", "source_id", "row_id", "species_id", "life_stage_id", "age", "age_days", "sex", "strain",
@@ -122,21 +122,21 @@ VALUE_COLUMNS = ["id", "source_id", "row_id", "species_id", "life_stage_id", "ag
                  "missing_reason", "comment", "file", "line"]
 
 
-def _digest_rows(digest, rows: list[tuple]) -> None:
-    """Feed a table's rows to ``digest`` column by column: numbers as float64 bytes, text joined.
+def _digest_columns(digest, n_rows: int, columns) -> None:
+    """Feed a table to ``digest`` column by column: numbers as float64 bytes, text joined.
 
     Column-wise hashing costs a fraction of one repr per row, and gives the same bytes for rows
     as inserted and as read back from SQLite (a test checks this).
     """
-    digest.update(str(len(rows)).encode())
-    for column in zip(*rows):
+    digest.update(str(n_rows).encode())
+    for column in columns:
         try:
             numbers = np.array(column, dtype=float)  # None becomes NaN; text raises
         except (TypeError, ValueError):
             digest.update(b"text")
-            try:
-                text = "\x1f".join([v if v is not None else "\x00" for v in column])
-            except TypeError:  # a number among the text
+            try:  # a column without empty cells joins at C speed
+                text = "\x1f".join(column)
+            except TypeError:  # an empty cell (None) or a number among the text
                 text = "\x1f".join(["\x00" if v is None else str(v) for v in column])
             digest.update(text.encode())
         else:
@@ -144,18 +144,21 @@ def _digest_rows(digest, rows: list[tuple]) -> None:
             digest.update((numbers + 0.0).tobytes())
 
 
-def content_hash(conn: sqlite3.Connection, inserted: dict[str, list[tuple]] | None = None) -> str:
+def content_hash(conn: sqlite3.Connection, inserted: dict[str, list[list]] | None = None) -> str:
     """SHA-256 over every hashed table's rows in key order.
 
-    ``inserted`` may give a table's rows exactly as they were inserted, all columns in order:
-    hashing those skips reading a large table back.
+    ``inserted`` may give a table's columns exactly as they were inserted, all columns in order:
+    hashing those skips reading a large table back (and turning rows into columns).
     """
     digest = hashlib.sha256()
     for table in HASHED_TABLES:
         digest.update(table.encode())
-        rows = inserted[table] if inserted and table in inserted else \
-            conn.execute(f'SELECT * FROM "{table}" ORDER BY 1').fetchall()
-        _digest_rows(digest, rows)
+        if inserted and table in inserted:
+            columns = inserted[table]
+            _digest_columns(digest, len(columns[0]) if columns else 0, columns)
+            continue
+        rows = conn.execute(f'SELECT * FROM "{table}" ORDER BY 1').fetchall()
+        _digest_columns(digest, len(rows), zip(*rows))
     return digest.hexdigest()
 
 
@@ -184,6 +187,7 @@ def write_store(tree: CuratedTree, frame: pd.DataFrame, path: Path) -> tuple[str
         conn.execute("PRAGMA foreign_keys = OFF")
         conn.execute("PRAGMA synchronous = OFF")  # a temporary file: a crash just discards it
         conn.execute("PRAGMA journal_mode = OFF")
+        conn.execute("PRAGMA cache_size = -131072")  # 128 MiB: the unique (source, row) index stays in memory
         conn.execute("BEGIN")
         for name, descriptor in descriptors.VOCABULARIES.items():
             columns = descriptors.names(descriptor)
@@ -205,12 +209,12 @@ def write_store(tree: CuratedTree, frame: pd.DataFrame, path: Path) -> tuple[str
         for (name,) in conn.execute("SELECT name FROM sqlite_master WHERE type = 'index' AND "
                                     "tbl_name = 'curated_values' AND sql IS NOT NULL").fetchall():
             conn.execute(f'DROP INDEX "{name}"')
-        value_rows = _value_rows(frame)
-        _insert(conn, "curated_values", VALUE_COLUMNS, value_rows)
+        value_columns = _value_columns(frame)
+        _insert(conn, "curated_values", VALUE_COLUMNS, zip(*value_columns))
         for sql in indexes:
             conn.execute(sql)
         _insert(conn, "input_files", ["path", "sha256"], sorted(tree.file_hashes.items()))
-        digest = content_hash(conn, {"curated_values": value_rows})
+        digest = content_hash(conn, {"curated_values": value_columns})
         counts = {t: conn.execute(f'SELECT count(*) FROM "{t}"').fetchone()[0]
                   for t in ("species", "sources", "curated_values")}
         from .. import __version__
