@@ -64,7 +64,7 @@ def main(argv=None) -> None:
 
     debug = "--debug" in (argv if argv is not None else sys.argv[1:])
     try:
-        cli.main(args=argv, standalone_mode=False)
+        cli.main(args=argv, prog_name="bodyplan", standalone_mode=False)
     except click.exceptions.Exit as exc:
         sys.exit(exc.exit_code)
     except click.UsageError as exc:
