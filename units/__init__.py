@@ -126,6 +126,9 @@ def grammar(text: str) -> None:
                 raise UnitError(f"cannot read unit {text!r}: brackets nest at most {MAX_DEPTH} deep; {example}")
             expect_factor, last = True, "open"
             continue
+        if kind == "number" and not expect_factor:  # '2 3 kg': a number cannot follow a unit or a number
+            raise UnitError(f"cannot read unit {text!r}: the number {tok} follows another factor; write a number "
+                            f"only first, after '/' or inside brackets, e.g. 'mL/min/(100 g)'")
         if kind == "number" and not math.isfinite(float(tok)):
             raise UnitError(f"cannot read unit {text!r}: {tok} is not a finite number; {example}")
         if kind == "name" and not _known(tok):
@@ -167,6 +170,8 @@ def parse_quantity_text(text: str) -> QuantityText:
         raise UnitError(f"{raw!r}: use '.' as the decimal point, e.g. '4.5 kg'")
     if not unit:
         raise UnitError(f"{raw!r} has no unit; write it with one, e.g. '12 kg'")
+    if re.match(r"[\d.]", unit):
+        raise UnitError(f"{raw!r} holds two numbers before its unit; {example}")
     grammar(unit)
     if not re.search(r"[A-Za-z_µμΩ°%]", unit):
         raise UnitError(f"{raw!r} has no unit; write it with one, e.g. '12 kg'")
