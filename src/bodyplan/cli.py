@@ -102,3 +102,28 @@ def _internal(exc: BaseException) -> None:
     click.echo(f"error: internal error (a bodyplan bug, please report it): {type(exc).__name__}: {exc}; "
                "run with --debug for the traceback", err=True)
     sys.exit(3)
+
+
+def reference_markdown() -> str:
+    """The command reference in DEVELOPERS.md, generated from the commands themselves (a test keeps
+    the copy there current): every command, argument and option with its help text."""
+    lines = []
+    for name in sorted(COMMANDS):
+        command = LazyGroup().get_command(None, name)
+        arguments = " ".join(p.human_readable_name if p.required else f"[{p.human_readable_name}]"
+                             for p in command.params if isinstance(p, click.Argument))
+        lines += [f"**`bodyplan {name}{' ' + arguments if arguments else ''}`**: "
+                  f"{(command.help or '').strip().splitlines()[0]}", ""]
+        options = [p for p in command.params if isinstance(p, click.Option) and not p.hidden]
+        if options:
+            lines += ["| option | does |", "|---|---|"]
+            for p in options:
+                names = ", ".join(f"`{o}`" for o in p.opts + p.secondary_opts)
+                extra = ""
+                if isinstance(p.type, click.Choice):
+                    extra += f" One of: {', '.join(map(str, p.type.choices))}."
+                if p.show_default and p.default not in (None, False, ()):
+                    extra += f" Default: {p.default}."
+                lines.append(f"| {names} | {' '.join((p.help or '').split())}{extra} |")
+            lines.append("")
+    return "\n".join(lines)

@@ -28,7 +28,7 @@ def store_option(f):
 
 def force_option(f):
     return click.option("--force", is_flag=True,
-                        help="Overwrite --out even if it exists and is not a file of the kind written.")(f)
+                        help="Overwrite an existing --out of another kind (a file the command reads is never overwritten).")(f)
 
 
 def _finite(data):
