@@ -143,6 +143,11 @@ CASES = {
                              absent=lambda t, s, x: [x / "new.sqlite"]),
     "symlink out of the tree": Case(lambda t, s, x: ["check", t], "values/testsource2021.csv:0: file: is a symbolic "
                                     "link to", setup=_symlink_out),
+    "--store a text file": Case(lambda t, s, x: ["info", "--store", t / "sources.bib"], "is not a bodyplan store"),
+    "--store another database": Case(lambda t, s, x: ["info", "--store", x / "other.sqlite"],
+                                     "is an SQLite file but not a bodyplan store",
+                                     setup=lambda t, s, x: sqlite3.connect(x / "other.sqlite").execute(
+                                         "CREATE TABLE t (a)").connection.commit()),
     "unknown finding code": Case(lambda t, s, x: ["check", "--explain", "Z999"], "unknown finding code 'Z999'"),
     "usage error": Case(lambda t, s, x: ["params", "dog", "--store", s, "--no-such-option"],
                         "error: No such option '--no-such-option'", code=2),
@@ -296,3 +301,16 @@ def test_store_is_opened_read_only_by_uri(store):
     s = bodyplan.open_store(store)
     with pytest.raises(sqlite3.OperationalError):
         s.conn.execute("CREATE TABLE x (a)")
+
+
+def test_cache_folder_with_hash_and_question_mark(tmp_path, capsys, monkeypatch):
+    """The bundled files built into a cache whose path holds '#' and '?': every command still works."""
+    cache = tmp_path / "cache #1?x"
+    monkeypatch.setenv("XDG_CACHE_HOME", str(cache))
+    monkeypatch.delenv("BODYPLAN_STORE", raising=False)
+    code, out, err = run(["info", "--format", "json"], capsys)
+    assert code == 0, err
+    assert '"values"' in out
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["cache #1?x"]  # no stray file beside it
+    stores = list((cache / "bodyplan").glob("store-*.sqlite"))
+    assert len(stores) == 1 and sorted(p.name for p in (cache / "bodyplan").iterdir()) == [stores[0].name]
