@@ -86,18 +86,25 @@ def _text(column: pd.Series) -> list:
     return [cell if cell else None for cell in column.tolist()]
 
 
-def _value_columns(frame: pd.DataFrame) -> list[list]:
-    """The curated_values table column by column (hashed as columns, inserted as rows)."""
+def _value_columns(frame: pd.DataFrame) -> tuple[list[list], list]:
+    """The curated_values table column by column: the columns to insert (as rows), and the same
+    columns for the content hash, numbers there as float arrays (NaN for NULL) that hash as they are."""
     frame = frame.sort_values(["_source", "_line"])
     strip = {c: _text(frame[c]) for c in
              ("id", "species", "life_stage", "age", "sex", "strain", "compartment", "quantity", "unit",
               "uncertainty", "basis", "locator", "missing_reason", "comment")}
 
+    arrays = {}
+
     def num(col):  # NaN to None, -0.0 to 0.0: the values exactly as SQLite gives them back
         arr = frame[col].to_numpy(dtype=float) + 0.0
+        missing = np.isnan(arr)
+        arr[missing] = np.nan  # one NaN bit pattern, as None hashes
         cells = arr.astype(object)
-        cells[np.isnan(arr)] = None
-        return cells.tolist()
+        cells[missing] = None
+        cells = cells.tolist()
+        arrays[id(cells)] = arr
+        return cells
 
     n = [None if np.isnan(v) else int(v) for v in frame["_n"].to_numpy(dtype=float)]
     columns = [
@@ -112,7 +119,7 @@ def _value_columns(frame: pd.DataFrame) -> list[list]:
         strip["comment"], frame["_file"].tolist(), frame["_line"].astype(int).tolist(),
     ]
     columns.insert(0, list(range(1, len(frame) + 1)))  # the store's id first, as SELECT * gives it back
-    return columns
+    return columns, [arrays.get(id(c), c) for c in columns]
 
 
 VALUE_COLUMNS = ["id", "source_id", "row_id", "species_id", "life_stage_id", "age", "age_days", "sex", "strain",
@@ -209,12 +216,12 @@ def write_store(tree: CuratedTree, frame: pd.DataFrame, path: Path) -> tuple[str
         for (name,) in conn.execute("SELECT name FROM sqlite_master WHERE type = 'index' AND "
                                     "tbl_name = 'curated_values' AND sql IS NOT NULL").fetchall():
             conn.execute(f'DROP INDEX "{name}"')
-        value_columns = _value_columns(frame)
+        value_columns, hashed_columns = _value_columns(frame)
         _insert(conn, "curated_values", VALUE_COLUMNS, zip(*value_columns))
         for sql in indexes:
             conn.execute(sql)
         _insert(conn, "input_files", ["path", "sha256"], sorted(tree.file_hashes.items()))
-        digest = content_hash(conn, {"curated_values": value_columns})
+        digest = content_hash(conn, {"curated_values": hashed_columns})
         counts = {t: conn.execute(f'SELECT count(*) FROM "{t}"').fetchone()[0]
                   for t in ("species", "sources", "curated_values")}
         from .. import __version__
