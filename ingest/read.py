@@ -154,7 +154,8 @@ def read_table(path: Path, rel: str, descriptor: dict, findings: Findings,
                            code="R108")
             missing.add((rel, name))
             frame[name] = ""
-    frame = frame[expected].copy()
+    if list(frame.columns) != expected:  # the usual file has the descriptor's order already: no copy
+        frame = frame[expected].copy()
     frame["_file"] = rel
     frame["_line"] = lines
     return frame
