@@ -229,6 +229,10 @@ def lint_tree(root: str | Path, *, write: bool = True) -> LintReport:
     report = LintReport()
     for path, rel, descriptor in curated_files(root):
         report.checked += 1
+        if not path.resolve().is_relative_to(root.resolve()):  # never rewrite a file outside the tree
+            report.problems.append(f"{rel}:0: is a symbolic link to {path.resolve()}, outside the data folder; "
+                                   "lint leaves it alone (copy the file into the folder)")
+            continue
         try:
             new = canonical_text(path, rel, descriptor)
         except LintError as exc:

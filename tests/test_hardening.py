@@ -148,6 +148,8 @@ CASES = {
                                      "is an SQLite file but not a bodyplan store",
                                      setup=lambda t, s, x: sqlite3.connect(x / "other.sqlite").execute(
                                          "CREATE TABLE t (a)").connection.commit()),
+    "lint through a symlink": Case(lambda t, s, x: ["lint", t], "values/testsource2021.csv:0: is a symbolic link",
+                                   setup=_symlink_out, unchanged=lambda t, s, x: [x / "outside.csv"]),
     "unknown finding code": Case(lambda t, s, x: ["check", "--explain", "Z999"], "unknown finding code 'Z999'"),
     "usage error": Case(lambda t, s, x: ["params", "dog", "--store", s, "--no-such-option"],
                         "error: No such option '--no-such-option'", code=2),
