@@ -32,7 +32,7 @@ def render_table(ps, file=None) -> None:
     console = Console(file=file or sys.stdout, width=None if (file or sys.stdout).isatty() else 160)
     bw, co = d["body_weight"], d["cardiac_output"]
     title = (f"{ps.species}, {ps.life_stage}{', ' + ps.sex if ps.sex else ''}: {ps.layout.name} layout, "
-             f"body weight {_value_text(bw['value'])} kg ({bw['fill']})")
+             f"body mass {_value_text(bw['value'])} kg ({bw['fill']})")
     table = Table(title=title, title_justify="left")
     for name, justify in (("compartment", "left"), (f"volume ({d['compartments'][0]['volume']['unit']})", "right"),
                           ("how", "left"), (f"blood flow ({co['unit']})", "right"), ("how", "left"),
