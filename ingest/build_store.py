@@ -41,9 +41,24 @@ def check(root: str | Path, plausibility: bool = True) -> tuple[Findings, Curate
     findings = Findings()
     tree = read_tree(root, findings)
     frame = validate(tree, findings) if tree.values is not None else pd.DataFrame()
+    _check_finite(frame, findings)
     if plausibility and not findings.errors:
         check_plausibility(frame, tree, findings)
     return findings, tree, frame
+
+
+def _check_finite(frame: pd.DataFrame, findings: Findings) -> None:
+    """A finite number whose conversion overflows ('1e308' in L/min is infinite in L/h) would reach the
+    store, and JSON, as Infinity: refused here, where the converted numbers first exist."""
+    for column in ("_value_canonical", "_low_canonical", "_high_canonical", "_sd_canonical"):
+        if column not in frame:
+            continue
+        numbers = frame[column].to_numpy(dtype=float)
+        for i in np.flatnonzero(np.isinf(numbers)):
+            row = frame.iloc[i]
+            findings.error(row["_file"], row["_line"], "value",
+                           f"{row['value']} {row['unit']} is too large once converted to {row['_unit_canonical']}; "
+                           "check the number and its unit", code="V226")
 
 
 def _without_braces(text: str) -> str:

@@ -59,6 +59,8 @@ CODES: dict[str, str] = {
             "prints it, in the unit grammar (e.g. 'mL/min/kg').",
     "V225": "An age or body mass cannot be read as a number and a unit of the right dimension (e.g. '10 week', "
             "'0.25 kg'), or is not positive.",
+    "V226": "A number becomes infinite once converted to the canonical unit (e.g. 1e308 L/min in L/h). Check "
+            "the number and its unit.",
     "W301": "The value lies outside the quantity's plausible range. Check the unit and the digits.",
     "W302": "Fractions of one animal group in one source sum to an odd total. Look for a part counted with its "
             "whole, a missing organ, or a '%' read as '1'.",

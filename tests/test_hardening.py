@@ -96,6 +96,9 @@ CASES = {
     # hangs: pint would evaluate the power tower
     "power tower in a unit cell": Case(lambda t, s, x: ["check", t], "exponents are whole numbers from -4 to 4",
                                        setup=lambda t, s, x: edit(t / V, ",12,kg,sd,", ",12,g**9**9**9,sd,")),
+    "overflow on conversion": Case(lambda t, s, x: ["check", t], f"{V}:8: value: 1e308 L/min is too large once "
+                                   "converted to L/h", setup=lambda t, s, x: edit(t / V, ",2.4,L/min,ci95,,2.0,2.8,",
+                                                                                 ",1e308,L/min,none,,,,")),
     "power tower in --body-mass": Case(lambda t, s, x: ["params", "dog", "--store", s, "--body-mass", "1 g**9**9**9"],
                                        "exponents are whole numbers"),
     # overwrites
