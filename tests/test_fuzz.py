@@ -45,7 +45,11 @@ def test_quantity_text_is_read_exactly_or_refused(text):
     # the magnitude is exactly that number, finite and not negative
     m = re.match(r"\s*((?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)", text)
     assert m, text
-    assert q.magnitude == float(m.group(1)) and math.isfinite(q.magnitude) and q.magnitude >= 0
+    number = float(m.group(1))
+    unit = re.sub(r"^\s*(?:±|\+/-)\s*[\d.]+(?:[eE][+-]?\d+)?", "", text[m.end():])  # the optional spread
+    assert q.magnitude == number and math.isfinite(q.magnitude) and q.magnitude >= 0
+    # the only other numbers are exponents and the scale opening a bracket after '/' (mL/min/(100 g))
+    assert not re.search(r"\d", re.sub(r"/\s*\(\s*[\d.]+(?:[eE][+-]?\d+)?|(?:\^|\*\*)\s*-?\d+", "", unit)), text
     assert "," not in text and "nan" not in text.lower()
     assert not q.dimensionless
 

@@ -88,6 +88,8 @@ def grammar(text: str) -> None:
     unit := factor ((' ' | '*' | '/') factor)* ; factor := (NAME | NUMBER | '(' unit ')') [('^'|'**') INT]
     """
     pos, depth, expect_factor, last = 0, 0, True, None
+    denominators = []  # per open bracket: does it follow '/'? Only there may a number scale a unit
+    number_needs_unit = False
     example = "write it as the source prints it, e.g. 'mL/min/kg', 'mL/min/(100 g)' or 'L/min/m^2'"
     while pos < len(text):
         m = TOKEN.match(text, pos)
@@ -96,6 +98,10 @@ def grammar(text: str) -> None:
         pos = m.end()
         kind = m.lastgroup
         tok = m.group(kind)
+        if number_needs_unit and not (kind == "name" or tok == "("):
+            raise UnitError(f"cannot read unit {text!r}: a number in a unit scales the unit after it, as in "
+                            f"'mL/min/(100 g)'; {example}")
+        number_needs_unit = False
         if kind == "bad":
             hint = " (use '.' as the decimal point)" if tok == "," else ""
             raise UnitError(f"cannot read unit {text!r}: {tok!r} is not allowed in a unit{hint}; {example}")
@@ -118,17 +124,24 @@ def grammar(text: str) -> None:
             if expect_factor or depth == 0:
                 raise UnitError(f"cannot read unit {text!r}: unbalanced ')'; {example}")
             depth, last = depth - 1, "close"
+            denominators.pop()
             continue
         # a factor: a name, a number or '('; two factors side by side multiply ("1.73 m^2")
         if tok == "(":
+            denominators.append(last == "op" and text[:m.start()].rstrip().endswith("/"))
             depth += 1
             if depth > MAX_DEPTH:
                 raise UnitError(f"cannot read unit {text!r}: brackets nest at most {MAX_DEPTH} deep; {example}")
             expect_factor, last = True, "open"
             continue
-        if kind == "number" and not expect_factor:  # '2 3 kg': a number cannot follow a unit or a number
-            raise UnitError(f"cannot read unit {text!r}: the number {tok} follows another factor; write a number "
-                            f"only first, after '/' or inside brackets, e.g. 'mL/min/(100 g)'")
+        if kind == "number":
+            # a number stands first (the '1' of '1/d', the value of '10 year') or opens a bracket after '/'
+            # ('mL/min/(1.73 m^2)'); anywhere else ('g/12', '2 3 kg') it would silently rescale the value
+            opens_denominator = last == "open" and denominators and denominators[-1]
+            if last is not None and not opens_denominator:
+                raise UnitError(f"cannot read unit {text!r}: the number {tok} can only stand first or open a "
+                                f"bracket after '/', e.g. 'mL/min/(100 g)'; {example}")
+            number_needs_unit = opens_denominator
         if kind == "number" and not math.isfinite(float(tok)):
             raise UnitError(f"cannot read unit {text!r}: {tok} is not a finite number; {example}")
         if kind == "name" and not _known(tok):
