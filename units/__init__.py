@@ -6,8 +6,9 @@ Everything that parses or converts a unit goes through here, so there is exactly
 pint's on-disk cache of parsed definitions, so commands that never touch a unit never pay for it.
 
 Text reaches pint only after ``grammar`` accepted it: an unsigned decimal number, an optional
-uncertainty (``± 0.5`` or ``+/- 0.5``), and a unit made of registry names, numbers, ``*``, ``/``,
-parentheses and small integer exponents (``^2``, ``**-1``). pint's own parser evaluates arbitrary
+uncertainty (``± 0.5`` or ``+/- 0.5``), and a unit made of registry names, ``*``, ``/``, parentheses
+and small integer exponents (``^2``, ``**-1``); a number inside a unit stands only first (``1/d``) or
+opens a bracket after ``/`` (``mL/min/(100 g)``). pint's own parser evaluates arbitrary
 arithmetic (``g**9**9**9`` never finishes), reads ``4,5`` as 45 and ``nan`` as a number; the grammar
 rules all of those out before pint sees them.
 """
