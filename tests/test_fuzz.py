@@ -6,11 +6,13 @@ examples; set BODYPLAN_FUZZ_EXAMPLES=10000 for a long run (the number of example
 
 from __future__ import annotations
 
+import atexit
 import csv
 import io
 import math
 import os
 import re
+import shutil
 import tempfile
 from pathlib import Path
 
@@ -66,6 +68,7 @@ def test_well_formed_mass_round_trips(number, unit, gap):
 COLUMNS = descriptors.names(descriptors.VALUES)
 CELL = st.text(st.sampled_from(list("ab 1.,\"\r\n\t;é") + ["\u00a0", "\U0001f415"]), max_size=6)
 DIR = Path(tempfile.mkdtemp(prefix="bodyplan-fuzz-"))
+atexit.register(shutil.rmtree, DIR, True)  # one scratch folder for every example, removed at exit
 
 
 def _written(rows, terminator, encoding) -> bytes:
