@@ -7,6 +7,8 @@ given body mass, back-transformed to the original scale (so it is asymmetric the
 
 from __future__ import annotations
 
+from ..errors import BodyplanError
+
 import math
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
@@ -19,7 +21,7 @@ if TYPE_CHECKING:  # pandas loads lazily, inside the functions that need it
     import pandas as pd
 
 
-class AllometryError(ValueError):
+class AllometryError(BodyplanError, ValueError):
     """Too few species, or values a power law cannot take (zero, negative, missing)."""
 
 

@@ -19,6 +19,8 @@ from pathlib import Path
 
 import numpy as np
 
+from ..errors import BodyplanError
+
 # field → (lowest, highest) accepted; outside these the number is surely a typo or the wrong unit
 RANGES = {
     "log_p": (-10.0, 15.0),
@@ -41,7 +43,7 @@ HELP = {
 MAX_PKA = 2  # monoprotic and diprotic compounds
 
 
-class CompoundError(ValueError):
+class CompoundError(BodyplanError, ValueError):
     """Compound inputs with problems; ``problems`` lists every one as file:line: column: message."""
 
     def __init__(self, problems: list[str]):

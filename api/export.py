@@ -8,6 +8,8 @@ stored floats exactly.
 
 from __future__ import annotations
 
+from ..errors import BodyplanError
+
 import csv
 import json
 import math
@@ -38,7 +40,7 @@ PRIMARY = {"curated_values": ["source_id", "row_id"], "build_info": ["key"], "in
            "groups": ["source_id", "group_id", "contains"]}
 
 
-class ExportError(ValueError):
+class ExportError(BodyplanError, ValueError):
     """An export that cannot be made as asked (an unsupported format, a missing library)."""
 
 

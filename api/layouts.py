@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from ..errors import BodyplanError
+
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
@@ -11,7 +13,7 @@ from .locate import bundled_data_dir
 REST = "rest_of_body"
 
 
-class LayoutError(ValueError):
+class LayoutError(BodyplanError, ValueError):
     """A layout that is missing, malformed or names an unknown compartment."""
 
 

@@ -4,15 +4,24 @@ from __future__ import annotations
 
 import hashlib
 import os
-from importlib.resources import files
 from pathlib import Path
 
+from ..errors import BodyplanError
 
-class StoreNotFoundError(FileNotFoundError):
+
+class StoreNotFoundError(BodyplanError, FileNotFoundError):
     """No store at the path given."""
 
 
+def sqlite_uri(path: str | os.PathLike, mode: str = "ro") -> str:
+    """A proper SQLite URI for ``path``: '#', '?', '%' and spaces in folder or file names are
+    percent-encoded, so they never cut the path short or create a stray file."""
+    return f"{Path(path).absolute().as_uri()}?mode={mode}"
+
+
 def bundled_data_dir() -> Path:
+    from importlib.resources import files  # imported here: a command given a store never needs it
+
     return Path(str(files("bodyplan.data_curated")))
 
 

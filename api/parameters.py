@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from ..errors import BodyplanError
+
 import json
 import math
 from dataclasses import dataclass, field, replace
@@ -25,7 +27,7 @@ UNITS = {"SI": {p.id: (p.unit, 1.0) for p in PARAMETERS.values()},
 PHYSIOLOGY = ("gfr", "hematocrit")  # whole-body numbers a PBPK model usually needs besides the compartments
 
 
-class ParameterSetError(ValueError):
+class ParameterSetError(BodyplanError, ValueError):
     """A parameter-set request that cannot be answered as asked (unknown option, bad body weight)."""
 
 
@@ -74,8 +76,9 @@ class Cell:
 
 
 def _finite(x):
-    """Full precision in data formats; NaN and infinities are no JSON numbers."""
-    if x is None or not math.isfinite(x):
+    """Full precision in data formats; NaN (no number) is null. An infinity stays, so strict JSON refuses
+    it loudly rather than printing a silent null."""
+    if x is None or math.isnan(x):
         return None
     return float(x)
 

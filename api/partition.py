@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from ..errors import BodyplanError
 from . import kp_methods as km
 from ..schema.model import COMPOSITION as ROLES
 from .compound import Compound, Compounds, compounds_from
@@ -32,7 +33,7 @@ RR2006 = "Rodgers & Rowland 2006"
 DEFAULT_DONOR = "rat"  # the best-described species for composition
 
 
-class PartitionError(ValueError):
+class PartitionError(BodyplanError, ValueError):
     """A Kp request that cannot be answered as asked (unknown method, unknown donor species)."""
 
 

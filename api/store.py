@@ -2,12 +2,14 @@
 
 from __future__ import annotations
 
+from ..errors import BodyplanError
+
 import sqlite3
 from pathlib import Path
 
 import pandas as pd
 
-from .locate import locate_store
+from .locate import StoreNotFoundError, locate_store, sqlite_uri
 
 FILTERS = {  # keyword → column of curated_values
     "species": "species_id",
@@ -20,7 +22,7 @@ FILTERS = {  # keyword → column of curated_values
 }
 
 
-class UnknownIdError(LookupError):
+class UnknownIdError(BodyplanError, LookupError):
     """A species, stage, quantity or compartment id the store does not know."""
 
 
@@ -29,8 +31,16 @@ class Store:
 
     def __init__(self, path: str | Path):
         self.path = Path(path)
-        self.conn = sqlite3.connect(f"file:{self.path}?mode=ro", uri=True, check_same_thread=False)
+        with open(self.path, "rb") as fh:  # a text file or a picture given as --store: a clear refusal
+            if fh.read(16) != b"SQLite format 3\x00":
+                raise StoreNotFoundError(f"{self.path} is not a bodyplan store (not an SQLite file); build one "
+                                         f"with 'bodyplan build --out STORE.sqlite'")
+        self.conn = sqlite3.connect(sqlite_uri(self.path, "ro"), uri=True, check_same_thread=False)
         self.conn.row_factory = sqlite3.Row
+        if not self.conn.execute("SELECT 1 FROM sqlite_master WHERE name = 'build_info'").fetchone():
+            self.conn.close()
+            raise StoreNotFoundError(f"{self.path} is an SQLite file but not a bodyplan store (no build_info "
+                                     "table); build one with 'bodyplan build --out STORE.sqlite'")
 
     def __repr__(self) -> str:
         return f"Store({str(self.path)!r})"

@@ -12,6 +12,7 @@ import io
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from ..errors import BodyplanError
 from .findings import Finding, Findings
 
 BASELINE_FILE = "check_baseline.csv"
@@ -76,7 +77,7 @@ def tree_root(path: Path) -> Path:
     raise FileNotFoundError(f"{path} lies in no curated tree (no folder above it holds vocab/ or sources.bib)")
 
 
-class CheckFilesError(ValueError):
+class CheckFilesError(BodyplanError, ValueError):
     """Files that cannot be checked together (missing, or from two trees)."""
 
 

@@ -12,18 +12,22 @@ from __future__ import annotations
 
 import math
 
-from ..units import Quantity, to_quantity
+from ..errors import BodyplanError
+from ..units import Quantity, UnitError, to_quantity
 
 FORMULAS = ("du_bois", "mosteller", "meeh")
 NEEDS_HEIGHT = {"du_bois", "mosteller"}
 
 
-class BodySurfaceError(ValueError):
+class BodySurfaceError(BodyplanError, ValueError):
     """A body surface that cannot be computed as asked (no formula for the species, height missing)."""
 
 
 def _kg(weight) -> float:
-    w = float(to_quantity(weight, "kg").to("kg").magnitude)
+    try:
+        w = float(to_quantity(weight, "kg").to("kg").magnitude)
+    except UnitError as exc:
+        raise BodySurfaceError(f"body mass {weight!r}: {exc}") from None
     if not (w > 0 and math.isfinite(w)):
         raise BodySurfaceError(f"body mass {weight!r} must be a positive amount, e.g. '70 kg'")
     return w

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import glob
 import hashlib
 import os
 import sqlite3
@@ -40,12 +41,27 @@ def check(root: str | Path, plausibility: bool = True) -> tuple[Findings, Curate
     findings = Findings()
     tree = read_tree(root, findings)
     frame = validate(tree, findings) if tree.values is not None else pd.DataFrame()
+    _check_finite(frame, findings)
     if plausibility and not findings.errors:
         check_plausibility(frame, tree, findings)
     return findings, tree, frame
 
 
-def _plain(text: str) -> str:
+def _check_finite(frame: pd.DataFrame, findings: Findings) -> None:
+    """A finite number whose conversion overflows ('1e308' in L/min is infinite in L/h) would reach the
+    store, and JSON, as Infinity: refused here, where the converted numbers first exist."""
+    for column in ("_value_canonical", "_low_canonical", "_high_canonical", "_sd_canonical"):
+        if column not in frame:
+            continue
+        numbers = frame[column].to_numpy(dtype=float)
+        for i in np.flatnonzero(np.isinf(numbers)):
+            row = frame.iloc[i]
+            findings.error(row["_file"], row["_line"], "value",
+                           f"{row['value']} {row['unit']} is too large once converted to {row['_unit_canonical']}; "
+                           "check the number and its unit", code="V226")
+
+
+def _without_braces(text: str) -> str:
     """BibTeX's protective braces removed, for text shown to people."""
     return text.replace("{", "").replace("}", "")
 
@@ -56,13 +72,13 @@ def format_citation(fields: dict) -> str:
                 else a.split(",")[0].strip() if "," in a else a.split()[-1] for a in authors]
     who = (surnames[0] + " et al." if len(surnames) > 2 else " & ".join(surnames)) or \
         fields.get("organization", fields.get("publisher", "Anonymous"))
-    where = _plain(fields.get("journal") or fields.get("booktitle") or fields.get("publisher") or "")
+    where = _without_braces(fields.get("journal") or fields.get("booktitle") or fields.get("publisher") or "")
     detail = where
     if fields.get("volume"):
         detail += f" {fields['volume']}"
     if fields.get("pages"):
         detail += f":{fields['pages'].replace('--', '–')}"
-    title = _plain(fields.get("title", "")).rstrip(".")
+    title = _without_braces(fields.get("title", "")).rstrip(".")
     text = f"{who} ({fields.get('year', 'n.d.')}). {title}. {detail}".strip()
     return text.rstrip(".") + "."
 
@@ -82,22 +98,28 @@ def _vocab_rows(frame: pd.DataFrame, columns: list[str], keys: list[str]) -> lis
 
 def _text(column: pd.Series) -> list:
     """Cells (stripped when read) as a list, empty ones as None."""
-    cells = column.to_numpy(dtype=object, copy=True)
-    cells[cells == ""] = None
-    return cells.tolist()
+    return [cell if cell else None for cell in column.tolist()]
 
 
-def _value_rows(frame: pd.DataFrame) -> list[tuple]:
+def _value_columns(frame: pd.DataFrame) -> tuple[list[list], list]:
+    """The curated_values table column by column: the columns to insert (as rows), and the same
+    columns for the content hash, numbers there as float arrays (NaN for NULL) that hash as they are."""
     frame = frame.sort_values(["_source", "_line"])
     strip = {c: _text(frame[c]) for c in
              ("id", "species", "life_stage", "age", "sex", "strain", "compartment", "quantity", "unit",
               "uncertainty", "basis", "locator", "missing_reason", "comment", "class", "method")}
 
+    arrays = {}
+
     def num(col):  # NaN to None, -0.0 to 0.0: the values exactly as SQLite gives them back
         arr = frame[col].to_numpy(dtype=float) + 0.0
+        missing = np.isnan(arr)
+        arr[missing] = np.nan  # one NaN bit pattern, as None hashes
         cells = arr.astype(object)
-        cells[np.isnan(arr)] = None
-        return cells.tolist()
+        cells[missing] = None
+        cells = cells.tolist()
+        arrays[id(cells)] = arr
+        return cells
 
     n = [None if np.isnan(v) else int(v) for v in frame["_n"].to_numpy(dtype=float)]
     columns = [
@@ -114,7 +136,8 @@ def _value_rows(frame: pd.DataFrame) -> list[tuple]:
         frame["_statistic"].tolist(), (frame["_uncertainty_assumed"] == "yes").astype(int).tolist(),
         frame["_n_counts"].tolist(), frame["_denominator"].tolist(),
     ]
-    return list(zip(range(1, len(frame) + 1), *columns))  # the store's id first, as SELECT * gives it back
+    columns.insert(0, list(range(1, len(frame) + 1)))  # the store's id first, as SELECT * gives it back
+    return columns, [arrays.get(id(c), c) for c in columns]
 
 
 VALUE_COLUMNS = ["id", "source_id", "row_id", "species_id", "life_stage_id", "age", "age_days", "sex", "strain",
@@ -125,21 +148,21 @@ VALUE_COLUMNS = ["id", "source_id", "row_id", "species_id", "life_stage_id", "ag
                  "statistic", "uncertainty_assumed", "n_counts", "denominator"]
 
 
-def _digest_rows(digest, rows: list[tuple]) -> None:
-    """Feed a table's rows to ``digest`` column by column: numbers as float64 bytes, text joined.
+def _digest_columns(digest, n_rows: int, columns) -> None:
+    """Feed a table to ``digest`` column by column: numbers as float64 bytes, text joined.
 
     Column-wise hashing costs a fraction of one repr per row, and gives the same bytes for rows
     as inserted and as read back from SQLite (a test checks this).
     """
-    digest.update(str(len(rows)).encode())
-    for column in zip(*rows):
+    digest.update(str(n_rows).encode())
+    for column in columns:
         try:
             numbers = np.array(column, dtype=float)  # None becomes NaN; text raises
         except (TypeError, ValueError):
             digest.update(b"text")
-            try:
-                text = "\x1f".join([v if v is not None else "\x00" for v in column])
-            except TypeError:  # a number among the text
+            try:  # a column without empty cells joins at C speed
+                text = "\x1f".join(column)
+            except TypeError:  # an empty cell (None) or a number among the text
                 text = "\x1f".join(["\x00" if v is None else str(v) for v in column])
             digest.update(text.encode())
         else:
@@ -147,18 +170,21 @@ def _digest_rows(digest, rows: list[tuple]) -> None:
             digest.update((numbers + 0.0).tobytes())
 
 
-def content_hash(conn: sqlite3.Connection, inserted: dict[str, list[tuple]] | None = None) -> str:
+def content_hash(conn: sqlite3.Connection, inserted: dict[str, list[list]] | None = None) -> str:
     """SHA-256 over every hashed table's rows in key order.
 
-    ``inserted`` may give a table's rows exactly as they were inserted, all columns in order:
-    hashing those skips reading a large table back.
+    ``inserted`` may give a table's columns exactly as they were inserted, all columns in order:
+    hashing those skips reading a large table back (and turning rows into columns).
     """
     digest = hashlib.sha256()
     for table in HASHED_TABLES:
         digest.update(table.encode())
-        rows = inserted[table] if inserted and table in inserted else \
-            conn.execute(f'SELECT * FROM "{table}" ORDER BY 1').fetchall()
-        _digest_rows(digest, rows)
+        if inserted and table in inserted:
+            columns = inserted[table]
+            _digest_columns(digest, len(columns[0]) if columns else 0, columns)
+            continue
+        rows = conn.execute(f'SELECT * FROM "{table}" ORDER BY 1').fetchall()
+        _digest_columns(digest, len(rows), zip(*rows))
     return digest.hexdigest()
 
 
@@ -166,7 +192,8 @@ def _create_schema(path: Path) -> None:
     from sqlalchemy import create_engine
     from sqlmodel import SQLModel
 
-    engine = create_engine(f"sqlite:///{path}")
+    # the connection is made by sqlite3 itself: a '#' or '?' in the path must not pass through a URL
+    engine = create_engine("sqlite://", creator=lambda: sqlite3.connect(path))
     SQLModel.metadata.create_all(engine, tables=[t.__table__ for t in TABLES])
     engine.dispose()
 
@@ -186,6 +213,7 @@ def write_store(tree: CuratedTree, frame: pd.DataFrame, path: Path) -> tuple[str
         conn.execute("PRAGMA foreign_keys = OFF")
         conn.execute("PRAGMA synchronous = OFF")  # a temporary file: a crash just discards it
         conn.execute("PRAGMA journal_mode = OFF")
+        conn.execute("PRAGMA cache_size = -131072")  # 128 MiB: the unique (source, row) index stays in memory
         conn.execute("BEGIN")
         for name, descriptor in descriptors.VOCABULARIES.items():
             columns = descriptors.names(descriptor)
@@ -195,8 +223,8 @@ def write_store(tree: CuratedTree, frame: pd.DataFrame, path: Path) -> tuple[str
         for src in sorted(tree.sources, key=lambda s: s["key"]):
             f = src["fields"]
             year = f.get("year", "")
-            source_rows.append((src["key"], src["type"], f.get("author"), _plain(f.get("title", "")) or None,
-                                _plain(f.get("journal") or f.get("booktitle") or f.get("publisher") or "") or None,
+            source_rows.append((src["key"], src["type"], f.get("author"), _without_braces(f.get("title", "")) or None,
+                                _without_braces(f.get("journal") or f.get("booktitle") or f.get("publisher") or "") or None,
                                 int(year) if year.isdigit() else None, f.get("volume"), f.get("pages"),
                                 f.get("doi"), format_citation(f), src["bibtex"], f.get("note"),
                                 f.get("derived_from", "").strip() or None))
@@ -212,12 +240,12 @@ def write_store(tree: CuratedTree, frame: pd.DataFrame, path: Path) -> tuple[str
         for (name,) in conn.execute("SELECT name FROM sqlite_master WHERE type = 'index' AND "
                                     "tbl_name = 'curated_values' AND sql IS NOT NULL").fetchall():
             conn.execute(f'DROP INDEX "{name}"')
-        value_rows = _value_rows(frame)
-        _insert(conn, "curated_values", VALUE_COLUMNS, value_rows)
+        value_columns, hashed_columns = _value_columns(frame)
+        _insert(conn, "curated_values", VALUE_COLUMNS, zip(*value_columns))
         for sql in indexes:
             conn.execute(sql)
         _insert(conn, "input_files", ["path", "sha256"], sorted(tree.file_hashes.items()))
-        digest = content_hash(conn, {"curated_values": value_rows})
+        digest = content_hash(conn, {"curated_values": hashed_columns})
         counts = {t: conn.execute(f'SELECT count(*) FROM "{t}"').fetchone()[0]
                   for t in ("species", "sources", "curated_values")}
         from .. import __version__
@@ -236,6 +264,28 @@ def write_store(tree: CuratedTree, frame: pd.DataFrame, path: Path) -> tuple[str
     return digest, counts
 
 
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # another user's live process
+        return True
+    return True
+
+
+def remove_stale_temporaries(out: Path) -> list[Path]:
+    """Delete temporary stores of ``out`` left by builds that were killed: their name carries the pid
+    of the build that made them, and that process is gone. A build still running keeps its file."""
+    removed = []
+    for tmp in out.parent.glob(f".{glob.escape(out.name)}.*.tmp"):
+        pid = tmp.name[len(out.name) + 2:].split(".", 1)[0]
+        if not pid.isdigit() or not _alive(int(pid)):
+            tmp.unlink(missing_ok=True)
+            removed.append(tmp)
+    return removed
+
+
 def build(root: str | Path, out: str | Path, plausibility: bool = False) -> BuildResult:
     """Validate ``root`` and build the store at ``out``; on any error ``out`` is left as it was.
 
@@ -247,7 +297,8 @@ def build(root: str | Path, out: str | Path, plausibility: bool = False) -> Buil
         raise CuratedDataError(findings)
     out = Path(out)
     out.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{out.name}.", suffix=".tmp", dir=out.parent)
+    remove_stale_temporaries(out)
+    fd, tmp = tempfile.mkstemp(prefix=f".{out.name}.{os.getpid()}.", suffix=".tmp", dir=out.parent)
     os.close(fd)
     tmp_path = Path(tmp)
     try:

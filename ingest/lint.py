@@ -10,6 +10,8 @@ fixed point: linting a linted file changes nothing.
 
 from __future__ import annotations
 
+from ..errors import BodyplanError
+
 import csv
 import io
 import re
@@ -17,14 +19,14 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..schema import descriptors
-from .read import BIB_FILE, VALUES_DIR, VOCAB_DIR
+from .read import BIB_FILE, VALUES_DIR, VOCAB_DIR, CsvProblem, normalise_text, read_records
 
 NUMBER = re.compile(r"([+-]?)\s*(\d*)(\.\d*)?([eE][+-]?\d+)?")
 QUANTITY_COLUMNS = {f["name"] for f in descriptors.VALUES["fields"]
                     if f.get("constraints", {}).get("pattern") == descriptors.QUANTITY_TEXT}
 
 
-class LintError(ValueError):
+class LintError(BodyplanError, ValueError):
     """A file too broken to rewrite safely (not UTF-8, a ragged row, an unknown column)."""
 
 
@@ -72,26 +74,26 @@ def _decode(raw: bytes, rel: str) -> str:
         line = raw[: err.start].count(b"\n") + 1
         raise LintError(f"{rel}:{line}: byte 0x{raw[err.start]:02x} is not UTF-8; save the file as UTF-8 "
                         "first (lint will not guess the encoding)") from None
-    return text.removeprefix("\ufeff")
+    return normalise_text(text)
 
 
 def canonical_csv(raw: bytes, rel: str, descriptor: dict) -> str:
     """The canonical text of one curated CSV; LintError if it cannot be rewritten without losing data."""
     text = _decode(raw, rel)
-    reader = csv.reader(io.StringIO(text, newline=""))
-    rows = [(reader.line_num, row) for row in reader]
-    if not rows:
+    try:  # the reader that check uses: an unclosed quote is refused, never written back as one cell
+        records, starts = read_records(text)
+    except CsvProblem as problem:
+        raise LintError(f"{rel}:{problem.line}: {problem.message}; lint left the file alone") from None
+    if not records:
         raise LintError(f"{rel}:1: the file is empty; it needs at least the header line")
-    header = [h.strip() for h in rows[0][1]]
+    header = [h.strip() for h in records[0]]
     specs = {f["name"]: f for f in descriptor["fields"]}
     unknown = [h for h in header if h not in specs]
     if unknown or len(set(header)) != len(header):
         raise LintError(f"{rel}:1: header has unknown or repeated columns ({', '.join(unknown) or 'repeat'}); "
                         "fix it by hand, lint never drops a column")
     body = []
-    start = rows[0][0] + 1
-    for end, row in rows[1:]:
-        line, start = start, end + 1
+    for line, row in zip(starts[1:], records[1:]):
         if not any(cell.strip() for cell in row):
             continue  # a blank line
         if len(row) != len(header):
@@ -106,6 +108,38 @@ def canonical_csv(raw: bytes, rel: str, descriptor: dict) -> str:
     writer.writerow(list(specs))
     writer.writerows(body)
     return out.getvalue()
+
+
+GIVEN_PART = re.compile(r"\{[^{}]*\}|\\[a-zA-Z]+\s*\{?\w\}?|\\.\{?\w\}?|[^\s-]")
+
+
+def _initial(word: str) -> str:
+    """'Narendra' → 'N.', 'Jean-Louis' → 'J.-L.', '{\\'E}tienne' → '{\\'E}.'; a lowercase particle stays."""
+    if not word or word[0].islower():
+        return word
+    parts = []
+    for piece in word.split("-"):
+        m = GIVEN_PART.match(piece)
+        parts.append(m.group(0).rstrip(".") + "." if m else piece)
+    return "-".join(parts)
+
+
+def initials(author_field: str) -> str:
+    """Given names as initials in every 'Surname, Given Names' of a BibTeX author field.
+
+    Organisations in braces, 'others' and names without a comma (lint cannot tell the surname
+    reliably) are kept as written.
+    """
+    people = re.split(r"\s+and\s+", " ".join(author_field.split()))
+    out = []
+    for person in people:
+        surname, _, given = person.rpartition(",")
+        if person.startswith("{") or person == "others" or not any(c.isalpha() for c in surname) \
+                or not any(c.isalpha() for c in given):
+            out.append(person)
+            continue
+        out.append(f"{surname.strip()}, {' '.join(_initial(w) for w in given.split())}")
+    return " and ".join(out)
 
 
 def parse_bibtex(text: str):
@@ -151,6 +185,8 @@ def canonical_bibtex(raw: bytes, rel: str) -> str:
         for f in entry.fields:
             f.key = f.key.lower()
             f.value = " ".join(str(f.value).split())
+            if f.key == "author":
+                f.value = initials(f.value)
     others = [b for b in library.blocks if b not in library.entries]  # comments, @string, @preamble: kept first
     entries = sorted(library.entries, key=lambda e: natural_key(e.key))
     parts = [_entry_text(b, fmt, stack) for b in others] + [_entry_text(e, fmt, stack) for e in entries]
@@ -196,6 +232,10 @@ def lint_tree(root: str | Path, *, write: bool = True) -> LintReport:
     report = LintReport()
     for path, rel, descriptor in curated_files(root):
         report.checked += 1
+        if not path.resolve().is_relative_to(root.resolve()):  # never rewrite a file outside the tree
+            report.problems.append(f"{rel}:0: is a symbolic link to {path.resolve()}, outside the data folder; "
+                                   "lint leaves it alone (copy the file into the folder)")
+            continue
         try:
             new = canonical_text(path, rel, descriptor)
         except LintError as exc:

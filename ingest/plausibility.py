@@ -33,7 +33,7 @@ def check_ranges(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> 
                 findings.warn(row["_file"], row["_line"], "value",
                               f"{row['value']} {row['unit']} lies outside the plausible range {low:g}..{high:g} {unit} "
                               f"for {quantity}; check the unit and the number against the source",
-                              code="outside-plausible-range")
+                              code="W301")
 
 
 def _sum_warnings(frame, quantity, compartments, findings, total_if_odd, message, code) -> None:
@@ -71,11 +71,11 @@ def check_sums(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> No
     _sum_warnings(frame, "tissue_mass_fraction", top_level, findings, masses,
                   lambda first, total: f"organ mass fractions of {first['species']} ({first['life_stage']}) in this "
                                        f"source sum to {total:.3f}, above 1; check for a part counted with its whole "
-                                       "or a % read as 1", "mass-fractions-above-1")
+                                       "or a % read as 1", "W302")
     _sum_warnings(frame, "blood_flow_fraction", top_level, findings, flows,
                   lambda first, total: f"blood flow fractions of {first['species']} ({first['life_stage']}) in this "
                                        f"source sum to {total:.3f} of cardiac output (portal organs counted within "
-                                       "liver); a full set should be near 1", "flow-fractions-off-1")
+                                       "liver); a full set should be near 1", "W302")
 
 
 OUTLIER_FACTOR = 3.0  # common practice, no source: a 3-fold gap between studies of one parameter is worth a look
@@ -169,7 +169,7 @@ def check_outliers(frame: pd.DataFrame, findings: Findings, factor: float = OUTL
                               f"{row['value']} {row['unit']} ({_fmt(row['_value_canonical'])} {row['_unit_canonical']}) "
                               f"is {how} {what} for {row['species']} {row['life_stage']} {row['compartment']} "
                               f"{row['quantity']}; check the number, its unit, the compartment, life stage and strain "
-                              "against the source", code="outlier-between-sources")
+                              "against the source", code="W303")
 
 
 def check_unit_typos(frame: pd.DataFrame, findings: Findings) -> None:
@@ -218,7 +218,7 @@ def check_unit_typos(frame: pd.DataFrame, findings: Findings) -> None:
                               f"about {how} the median {_fmt(reference)} {row['_unit_canonical']} of "
                               f"{int(others.sum())} other {row['quantity']} row(s) of {row['species']} in this file, "
                               f"which use {other_unit!r}; is {unit!r} a typo for {other_unit!r}? check the unit in "
-                              "the source", code="unit-typo")
+                              "the source", code="W304")
 
 
 # --- what a number means: animals, parts, methods ---------------------------------------------------
@@ -252,7 +252,7 @@ def check_organ_above_body(frame: pd.DataFrame, findings: Findings) -> None:
             findings.warn(row["_file"], row["_line"], "value",
                           f"{row['value']} {row['unit']} of {row['compartment']} is more than the body mass "
                           f"{_fmt(body)} kg of its animals; check the unit, the number and the body mass",
-                          code="organ-above-body-mass")
+                          code="W305")
 
 
 def check_parts_above_whole(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> None:
@@ -286,7 +286,7 @@ def check_parts_above_whole(frame: pd.DataFrame, tree: CuratedTree, findings: Fi
                               f"the parts {names} of these animals sum to {_fmt(total)} {row['_unit_canonical']}, "
                               f"above the whole {whole[0]} ({whole[1]}) {_fmt(value[whole])} "
                               f"{row['_unit_canonical']}; check the compartments and parts of these rows",
-                              code="parts-above-whole")
+                              code="W306")
 
 
 def _refused(tree: CuratedTree) -> dict[str, tuple[str, set[str]]]:
@@ -310,7 +310,7 @@ def check_methods_accepted(frame: pd.DataFrame, tree: CuratedTree, findings: Fin
             findings.warn(row["_file"], row["_line"], "method",
                           f"{row['method']} is not accepted for {row['quantity']} of {row['species']} ({reason}); "
                           "pooling leaves this row out; keep it when the source prints it",
-                          code="method-not-accepted")
+                          code="W307")
 
 
 SAME_MEASUREMENT = [*ANIMALS, "compartment", "quantity", "_part", "_denominator", "method", "_statistic",
@@ -330,7 +330,7 @@ def check_duplicate_groups(frame: pd.DataFrame, findings: Findings) -> None:
                           f"group {row['_group']!r} already has {row['quantity']} of {row['compartment']} by the same "
                           f"method at line {first['_line']} (row {first['id']}); give each set of animals its own "
                           "group (e.g. one per diet or age), or keep one of the rows",
-                          code="duplicate-group")
+                          code="W308")
 
 
 OVERLAP = ["_source", "species", "life_stage", "compartment", "quantity", "_part", "_denominator"]
@@ -355,7 +355,7 @@ def check_overlapping_groups(frame: pd.DataFrame, tree: CuratedTree, findings: F
                               f"group {row['_group']!r} lies within group {whole!r} (groups.csv), which also gives "
                               f"{row['quantity']} of {row['compartment']} at line {whole_row['_line']}; pooling uses "
                               "one of them; accept this warning in check_baseline.csv once reviewed",
-                              code="overlapping-groups")
+                              code="W309")
 
 
 _NUMBER = r"([0-9]+(?:\.[0-9]+)?)"
@@ -383,7 +383,7 @@ def check_range_ends(frame: pd.DataFrame, findings: Findings) -> None:
         findings.warn(row["_file"], row["_line"], "value",
                       f"{row['value']} equals the range's {end} end; a range end is not a central value: give the "
                       "source's mean or median, or the midpoint with statistic reference_midpoint",
-                      code="range-end-as-value")
+                      code="W310")
     quoted = have[~have.index.isin(ranged.index) & have["comment"].str.contains(r"[0-9]", regex=True)]
     for row in quoted.to_dict("records"):
         for low, high in ranges_in_text(row["comment"]):
@@ -391,7 +391,7 @@ def check_range_ends(frame: pd.DataFrame, findings: Findings) -> None:
                 findings.warn(row["_file"], row["_line"], "value",
                               f"{row['value']} is an end of the range {low:g} to {high:g} the comment quotes; a range "
                               "goes in low and high (uncertainty range), the value is the central value or the "
-                              "midpoint with statistic reference_midpoint", code="range-end-as-value")
+                              "midpoint with statistic reference_midpoint", code="W310")
                 break
 
 
@@ -407,7 +407,7 @@ def check_midpoints(frame: pd.DataFrame, findings: Findings) -> None:
     for row, mid in zip(off.to_dict("records"), middle[off.index]):
         findings.warn(row["_file"], row["_line"], "value",
                       f"{row['value']} is marked reference_midpoint but the middle of {row['low']}..{row['high']} is "
-                      f"{_fmt(mid)}; give the midpoint, or the statistic the source prints", code="midpoint-not-middle")
+                      f"{_fmt(mid)}; give the midpoint, or the statistic the source prints", code="W311")
 
 
 def check_denominator_ratios(frame: pd.DataFrame, findings: Findings) -> None:
@@ -427,7 +427,7 @@ def check_denominator_ratios(frame: pd.DataFrame, findings: Findings) -> None:
                 findings.warn(row["_file"], row["_line"], "denominator",
                               f"a fraction of {denominator.replace('_', ' ')} mass, but this source gives no {ratio} "
                               f"of {row['species']}; add the source's ratio (whole_body, {ratio}) so the row can be "
-                              "converted to live body mass", code="denominator-without-ratio")
+                              "converted to live body mass", code="W312")
 
 
 def check_plausibility(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> None:

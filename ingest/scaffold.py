@@ -7,6 +7,8 @@ syntax the reader accepts, so the example row is printed for the curator instead
 
 from __future__ import annotations
 
+from ..errors import BodyplanError
+
 import csv
 import io
 import re
@@ -31,7 +33,7 @@ EXAMPLE_ROW = {
 }
 
 
-class ScaffoldError(ValueError):
+class ScaffoldError(BodyplanError, ValueError):
     """A new source that cannot be added as asked (key taken, BibTeX malformed); nothing was written."""
 
 

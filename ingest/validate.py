@@ -20,7 +20,7 @@ from .read import BIB_FILE, CuratedTree, read_table
 GROUPS_FILE = "groups.csv"
 
 
-def _report(frame: pd.DataFrame, mask, column: str, message, findings: Findings, skip: set, code: str = "") -> None:
+def _report(frame: pd.DataFrame, mask, column: str, message, findings: Findings, skip: set, *, code: str) -> None:
     """One finding per row where ``mask`` holds; ``message`` may be a function of the row's cell."""
     bad = frame.loc[np.asarray(mask, dtype=bool)]
     for file, line, cell in zip(bad["_file"], bad["_line"], bad[column] if column in bad else [""] * len(bad)):
@@ -42,34 +42,35 @@ def check_shape(frame: pd.DataFrame, descriptor: dict, findings: Findings, skip:
         rules = spec.get("constraints", {})
         if rules.get("required"):
             _report(frame, empty, name, f"is empty; {spec['description'][0].lower()}{spec['description'][1:]}",
-                    findings, skip)
+                    findings, skip, code="V201")
         if "enum" in rules:
             allowed = rules["enum"]
             _report(frame, ~empty & ~col.isin(allowed), name,
-                    lambda v, a=allowed: f"{v!r} is not one of: {', '.join(a)}", findings, skip)
+                    lambda v, a=allowed: f"{v!r} is not one of: {', '.join(a)}", findings, skip, code="V202")
         if "pattern" in rules:  # matched once per distinct cell: ids and groups repeat over many rows
             pattern = re.compile(rules["pattern"])
             wrong = [v for v in pd.unique(col.to_numpy(dtype=object)) if v and not pattern.fullmatch(v)]
             _report(frame, col.isin(wrong) if wrong else np.zeros(len(frame), dtype=bool), name,
                     lambda v, s=spec: f"{v!r} is not well formed; {s['description'][0].lower()}"
-                                      f"{s['description'][1:]}", findings, skip)
+                                      f"{s['description'][1:]}", findings, skip, code="V203")
         if spec["type"] in ("number", "integer"):
             as_number = pd.to_numeric(col.where(~empty), errors="coerce")
             _report(frame, ~empty & ~np.isfinite(as_number), name,
-                    lambda v: f"{v!r} is not a number; write digits with '.' as decimal point", findings, skip)
+                    lambda v: f"{v!r} is not a number; write digits with '.' as decimal point", findings, skip,
+                    code="V204")
             if spec["type"] == "integer":
                 fractional = as_number.notna() & (as_number != np.floor(as_number))
-                _report(frame, fractional, name, lambda v: f"{v!r} is not a whole number", findings, skip)
+                _report(frame, fractional, name, lambda v: f"{v!r} is not a whole number", findings, skip, code="V205")
             if "minimum" in rules:
                 _report(frame, as_number < rules["minimum"], name,
-                        lambda v, m=rules["minimum"]: f"{v} is below the minimum {m}", findings, skip)
+                        lambda v, m=rules["minimum"]: f"{v} is below the minimum {m}", findings, skip, code="V206")
 
 
 def check_unique(frame: pd.DataFrame, keys: list[str], findings: Findings, what: str) -> None:
     dup = frame.duplicated(keys + (["_file"] if "_file" in frame and what == "id" else []), keep="first")
     scope = f" for this {keys[0]}" if len(keys) > 1 else ""
     _report(frame, dup, keys[-1], lambda v: f"{what} {v!r} appears more than once{scope}; make each {what} unique",
-            findings, set())
+            findings, set(), code="V207")
 
 
 def check_foreign(frame: pd.DataFrame, column: str, known: set, vocab: str, findings: Findings,
@@ -77,7 +78,7 @@ def check_foreign(frame: pd.DataFrame, column: str, known: set, vocab: str, find
     col = frame[column]
     _report(frame, (col != "") & ~col.isin(known), column,
             lambda v: f"unknown {column} {v!r}; use an id from vocab/{vocab}.csv or add it there", findings, skip,
-            code=f"{column.replace('_', '-')}-unknown")
+            code="V208")
 
 
 def check_vocab(tree: CuratedTree, findings: Findings) -> None:
@@ -99,9 +100,9 @@ def check_vocab(tree: CuratedTree, findings: Findings) -> None:
         bsa = tree.vocab["body_surface"]
         _report(bsa, (bsa["formula"] == "meeh") & (bsa["k"] == ""), "k",
                 "is empty; Meeh's formula needs the species' k (area in cm² for mass in g)", findings,
-                tree.missing_columns, code="bsa-k-missing")
+                tree.missing_columns, code="V240")
         _report(bsa, (bsa["formula"] != "meeh") & (bsa["k"] != ""), "k",
-                "is only used with formula meeh; clear it", findings, tree.missing_columns, code="bsa-k-unused")
+                "is only used with formula meeh; clear it", findings, tree.missing_columns, code="V241")
     if "methods" in tree.vocab and "quantities" in tree.vocab:
         quantities = set(tree.vocab["quantities"]["id"]) | {"*"}
         scopes = species | set(descriptors.TAXON_CLASSES)
@@ -109,17 +110,17 @@ def check_vocab(tree: CuratedTree, findings: Findings) -> None:
             for q in row["quantities"].split():
                 if q not in quantities:
                     findings.error(row["_file"], row["_line"], "quantities", f"unknown quantity {q!r}; use ids "
-                                   "from vocab/quantities.csv, or * for any quantity", code="method-quantity-unknown")
+                                   "from vocab/quantities.csv, or * for any quantity", code="V238")
             for where in row["not_accepted_in"].split():
                 scope, _, quantity = where.partition(":")
                 if scope not in scopes:
                     findings.error(row["_file"], row["_line"], "not_accepted_in", f"{scope!r} is neither a taxon "
                                    f"class ({', '.join(descriptors.TAXON_CLASSES)}) nor a species id",
-                                   code="method-scope-unknown")
+                                   code="V239")
                 if quantity and quantity not in row["quantities"].split() and "*" not in row["quantities"].split():
                     findings.error(row["_file"], row["_line"], "not_accepted_in", f"{where!r} names quantity "
                                    f"{quantity!r}, which this method does not measure; use one of its quantities",
-                                   code="method-scope-unknown")
+                                   code="V239")
     if "quantities" in tree.vocab:
         for row in tree.vocab["quantities"].to_dict("records"):
             try:
@@ -127,10 +128,10 @@ def check_vocab(tree: CuratedTree, findings: Findings) -> None:
                 for _low, _high, unit in plausible_ranges(row["plausible_range"]):
                     conversion(unit, row["canonical_unit"], row["per"])
             except (UnitError, KeyError, ValueError) as exc:
-                findings.error(row["_file"], row["_line"], "canonical_unit", f"{exc}")
+                findings.error(row["_file"], row["_line"], "canonical_unit", f"{exc}", code="V209")
             if row["kind"] == "fraction" and row["canonical_unit"].strip() != "1":
                 findings.error(row["_file"], row["_line"], "canonical_unit",
-                               "a fraction's canonical unit must be '1'; use kind 'ratio' for other units")
+                               "a fraction's canonical unit must be '1'; use kind 'ratio' for other units", code="V210")
 
 
 RANGE = re.compile(r"\s*([0-9.eE+\-]+)\s*\.\.\s*([0-9.eE+\-]+)\s+(.+?)\s*$")
@@ -152,10 +153,10 @@ def check_sources(tree: CuratedTree, findings: Findings) -> set[str]:
     for src in tree.sources:
         if not re.fullmatch(r"[a-z0-9_]+", src["key"]):
             findings.error(BIB_FILE, src["line"], "key", f"citation key {src['key']!r} must be lowercase "
-                           "letters, digits and _ (it names the values file)")
+                           "letters, digits and _ (it names the values file)", code="V211")
         for required in ("title", "year"):
             if required not in src["fields"]:
-                findings.error(BIB_FILE, src["line"], required, f"entry {src['key']!r} has no {required}; add it")
+                findings.error(BIB_FILE, src["line"], required, f"entry {src['key']!r} has no {required}; add it", code="V212")
         keys.add(src["key"])
     check_derived_from(tree.sources, keys, findings)
     return keys
@@ -170,10 +171,10 @@ def check_derived_from(sources: list[dict], keys: set[str], findings: Findings) 
             continue
         if target == src["key"]:
             findings.error(BIB_FILE, src["line"], "derived_from", f"entry {src['key']!r} names itself; give the "
-                           "key of the source whose numbers it reprints", code="derived-from-self")
+                           "key of the source whose numbers it reprints", code="V236")
         elif target not in keys:
             findings.error(BIB_FILE, src["line"], "derived_from", f"entry {src['key']!r} names {target!r}, which "
-                           f"is not in {BIB_FILE}; add that source first or fix the key", code="derived-from-unknown")
+                           f"is not in {BIB_FILE}; add that source first or fix the key", code="V235")
         else:
             parent[src["key"]] = target
     line = {src["key"]: src["line"] for src in sources}
@@ -188,7 +189,7 @@ def check_derived_from(sources: list[dict], keys: set[str], findings: Findings) 
             reported |= set(cycle)
             findings.error(BIB_FILE, line[cycle[0]], "derived_from", "derived_from runs in a circle ("
                            + " → ".join(cycle + [cycle[0]]) + "); one of them must be the original",
-                           code="derived-from-cycle")
+                           code="V237")
 
 
 def read_groups(tree: CuratedTree, findings: Findings) -> pd.DataFrame:
@@ -215,7 +216,7 @@ def check_groups(groups: pd.DataFrame, values: pd.DataFrame, source_keys: set[st
         src, group = row["source"], row["group"]
         if src not in source_keys:
             findings.error(row["_file"], row["_line"], "source", f"unknown source {src!r}; use a citation key "
-                           f"from {BIB_FILE}", code="group-source-unknown")
+                           f"from {BIB_FILE}", code="V233")
             continue
         children.setdefault((src, group), []).extend(row["contains"].split())
     for row in groups.to_dict("records"):
@@ -228,7 +229,7 @@ def check_groups(groups: pd.DataFrame, values: pd.DataFrame, source_keys: set[st
                 column = "group" if name == group else "contains"
                 findings.error(row["_file"], row["_line"], column, f"group {name!r} of {src} is used by no row of "
                                f"values/{src}.csv and declared nowhere in {GROUPS_FILE}; fix the id or the rows' "
-                               "group", code="group-unknown")
+                               "group", code="V232")
     # a group reached again through its own subgroups
     for (src, start) in sorted(children):
         seen, todo = set(), list(children[(src, start)])
@@ -237,7 +238,7 @@ def check_groups(groups: pd.DataFrame, values: pd.DataFrame, source_keys: set[st
             if g == start:
                 row = groups[(groups["source"] == src) & (groups["group"] == start)].iloc[0]
                 findings.error(row["_file"], row["_line"], "contains", f"group {start!r} of {src} contains itself "
-                               "through its subgroups; a subgroup is smaller than its group", code="group-cycle")
+                               "through its subgroups; a subgroup is smaller than its group", code="V234")
                 break
             if g in seen:
                 continue
@@ -272,7 +273,7 @@ def check_values(tree: CuratedTree, source_keys: set[str], findings: Findings) -
     for file, stem in frame[["_file", "_source"]].drop_duplicates().itertuples(index=False):
         if stem not in source_keys:
             findings.error(file, 1, "file", f"no BibTeX entry {stem!r} in {BIB_FILE}; the file name must be "
-                           "the source's citation key")
+                           "the source's citation key", code="V213")
     vocab_ids = {name: set(v["id"]) for name, v in tree.vocab.items() if "id" in v}
     for column, vocab in (("species", "species"), ("life_stage", "life_stages"),
                           ("compartment", "compartments"), ("quantity", "quantities"), ("part", "parts"),
@@ -286,32 +287,34 @@ def check_values(tree: CuratedTree, source_keys: set[str], findings: Findings) -
     empty_value = frame["value"] == ""
     reason = frame["missing_reason"] != ""
     _report(frame, empty_value & ~reason, "value",
-            "is empty without a missing_reason; give the value, or say why the source lacks it", findings, skip)
+            "is empty without a missing_reason; give the value, or say why the source lacks it", findings, skip, code="V214")
     _report(frame, ~empty_value & reason, "missing_reason",
-            "is given but the value is not empty; clear one of them", findings, skip)
+            "is given but the value is not empty; clear one of them", findings, skip, code="V215")
     _report(frame, value < 0, "value", lambda v: f"{v} is negative; physiological amounts are never below 0",
-            findings, skip)
+            findings, skip, code="V216")
 
     kind = frame["uncertainty"]
     needs_spread = kind.isin(["sd", "se", "cv"])
     needs_bounds = kind.isin(["ci95", "range"])
     _report(frame, needs_spread & spread.isna(), "spread",
-            lambda v: "is empty but the uncertainty kind needs it; give the sd, se or cv", findings, skip)
+            lambda v: "is empty but the uncertainty kind needs it; give the sd, se or cv", findings, skip, code="V217")
     _report(frame, needs_bounds & (low.isna() | high.isna()), "low",
-            "low and high are needed for a ci95 or range; give both bounds", findings, skip)
+            "low and high are needed for a ci95 or range; give both bounds", findings, skip, code="V218")
     _report(frame, (kind == "none") & (spread.notna() | low.notna() | high.notna()), "uncertainty",
-            "is 'none' but spread or bounds are filled; name the kind (sd, se, cv, ci95, range)", findings, skip)
+            "is 'none' but spread or bounds are filled; name the kind (sd, se, cv, ci95, range)", findings, skip,
+            code="V219")
     _report(frame, ~needs_spread & ~(kind == "none") & spread.notna(), "spread",
-            "is only used with sd, se or cv; use low and high for a range or ci95", findings, skip)
+            "is only used with sd, se or cv; use low and high for a range or ci95", findings, skip,
+            code="V220")
     _report(frame, (low > value) | (value > high), "value",
-            lambda v: f"{v} lies outside its own low..high bounds; check the bounds", findings, skip)
-    _report(frame, low > high, "low", "is above high; swap the bounds", findings, skip)
+            lambda v: f"{v} lies outside its own low..high bounds; check the bounds", findings, skip, code="V221")
+    _report(frame, low > high, "low", "is above high; swap the bounds", findings, skip, code="V222")
 
     frame = frame.assign(_value=value, _spread=spread, _low=low, _high=high, _n=n)
     frame = attach_conversion(frame, tree, findings, skip)
     frac = frame["_kind"] == "fraction"
     _report(frame, frac & (frame["_value_canonical"] > 1), "value",
-            lambda v: f"{v} is a fraction above 1 (above 100 %); check the unit ('%' or '1')", findings, skip)
+            lambda v: f"{v} is a fraction above 1 (above 100 %); check the unit ('%' or '1')", findings, skip, code="V223")
     frame = attach_measures(frame, findings, skip)
     return frame
 
@@ -328,7 +331,7 @@ def check_semantics(frame: pd.DataFrame, tree: CuratedTree, findings: Findings, 
                                                                 frame["class"].to_numpy()[has_class])]
         _report(frame, unknown, "class",
                 lambda v: f"unknown class {v!r} for this species; use a class of the row's species from "
-                          "vocab/classes.csv or add it there", findings, skip, code="class-unknown")
+                          "vocab/classes.csv or add it there", findings, skip, code="V208")
     methods, quantities = tree.vocab.get("methods"), tree.vocab.get("quantities")
     if methods is not None:
         applies = {m: set(q.split()) for m, q in zip(methods["id"], methods["quantities"])}
@@ -338,7 +341,7 @@ def check_semantics(frame: pd.DataFrame, tree: CuratedTree, findings: Findings, 
         for file, line, method, quantity in zip(bad["_file"], bad["_line"], bad["method"], bad["quantity"]):
             findings.error(file, line, "method", f"method {method!r} does not measure {quantity}; it applies to "
                            f"{', '.join(sorted(applies[method]))} (vocab/methods.csv); pick the method the source "
-                           "used for this quantity", code="method-wrong-quantity")
+                           "used for this quantity", code="V227")
     if quantities is not None:
         info = quantities.set_index("id")
         of_body = set(info.index[(info["fraction_of"] == "body_mass")])
@@ -347,15 +350,15 @@ def check_semantics(frame: pd.DataFrame, tree: CuratedTree, findings: Findings, 
         fits = frame["quantity"].isin(of_body) | frame["quantity"].isin(per_body)
         _report(frame, denominated & ~fits, "denominator",
                 lambda v: f"{v!r} is only for fractions of body mass or per-kg-body-mass values; clear it",
-                findings, skip, code="denominator-not-applicable")
+                findings, skip, code="V228")
     kind = frame["uncertainty"]
     _report(frame, (frame["_uncertainty_assumed"] == "yes") & ~kind.isin(["sd", "se"]), "uncertainty_assumed",
             "is yes, but only an sd or se read from an unlabelled ± can be assumed; set uncertainty to sd or se, "
-            "or this to no", findings, skip, code="uncertainty-assumed-kind")
+            "or this to no", findings, skip, code="V229")
     n = numeric(frame, "n")
     _report(frame, (frame["_statistic"] == "single_animal") & (n > 1), "statistic",
             "is single_animal but n is above 1; give the group's statistic or n = 1", findings, skip,
-            code="single-animal-n")
+            code="V230")
 
 
 def attach_conversion(frame: pd.DataFrame, tree: CuratedTree, findings: Findings, skip: set) -> pd.DataFrame:
@@ -373,7 +376,7 @@ def attach_conversion(frame: pd.DataFrame, tree: CuratedTree, findings: Findings
         try:
             form, f = conversion(unit.strip(), info["canonical_unit"], info["per"])
         except UnitError as exc:
-            _report(frame.iloc[index], np.ones(len(index)), "unit", str(exc), findings, skip)
+            _report(frame.iloc[index], np.ones(len(index)), "unit", str(exc), findings, skip, code="V224")
             continue
         factor[index] = f
         canonical[index] = form.canonical_unit
@@ -393,6 +396,10 @@ def _measure(frame, column, dimension, unit, findings, skip, what, code="") -> n
     for text, index in frame.groupby(column, sort=False).indices.items():
         if not text.strip():
             continue
+        if text.lstrip().startswith("-"):  # the grammar has no sign: say what is wrong in the trade's words
+            _report(frame.iloc[index], np.ones(len(index)), column,
+                    f"{text!r} is negative; give {what} of zero or more", findings, skip, code="V231")
+            continue
         try:
             try:
                 q = parse_unit(text)
@@ -406,17 +413,17 @@ def _measure(frame, column, dimension, unit, findings, skip, what, code="") -> n
             out[index] = amount
         except (UnitError, Exception) as exc:  # pint's own errors included
             message = str(exc) if isinstance(exc, UnitError) else f"cannot read {text!r}; write e.g. {dimension}"
-            _report(frame.iloc[index], np.ones(len(index)), column, message, findings, skip, code=code)
+            _report(frame.iloc[index], np.ones(len(index)), column, message, findings, skip, code=code or "V225")
     return out
 
 
 def attach_measures(frame: pd.DataFrame, findings: Findings, skip: set) -> pd.DataFrame:
-    body_kg = _measure(frame, "body_mass", "'0.25 kg'", "kg", findings, skip, "a mass", "body-mass-unreadable")
+    body_kg = _measure(frame, "body_mass", "'0.25 kg'", "kg", findings, skip, "a mass", "V225")
     _report(frame, body_kg <= 0, "body_mass", lambda v: f"{v!r} is not positive; give the subjects' mass",
-            findings, skip)
-    age_days = _measure(frame, "age", "'10 year'", "day", findings, skip, "an age", "age-unreadable")
+            findings, skip, code="V225")
+    age_days = _measure(frame, "age", "'10 year'", "day", findings, skip, "an age", "V225")
     _report(frame, age_days < 0, "age", lambda v: f"{v!r} is negative; give the age since birth or hatching",
-            findings, skip, code="age-negative")
+            findings, skip, code="V231")
     # sd in canonical units: from sd, se·√n, cv·value, or a ci95 of a mean (width / 3.92 · √n)
     kind = frame["uncertainty"].to_numpy()
     f, spread, n = frame["_factor"].to_numpy(), frame["_spread"].to_numpy(), frame["_n"].to_numpy()

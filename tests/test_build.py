@@ -30,7 +30,7 @@ def test_check_errors_exit_1(scenario_tree):
     tree = scenario_tree("bad/negative_mass")
     result = run("check", tree)
     assert result.exit_code == 1
-    assert result.stdout == f"{V}:3: value: -350 is negative; physiological amounts are never below 0\n"
+    assert result.stdout == f"{V}:3: value: -350 is negative; physiological amounts are never below 0 [V216]\n"
 
 
 def test_check_warnings_only_exit_2_and_strict_exit_1(scenario_tree):

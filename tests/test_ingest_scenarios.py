@@ -146,3 +146,37 @@ def test_cells_are_compared_stripped(fixture_tree, tmp_path, species_cell):
     species = sqlite3.connect(result.path).execute(
         "SELECT species_id FROM curated_values WHERE row_id = 'dog_co'").fetchone()[0]
     assert species == "dog"
+
+
+def _scenario_findings(scenario_tree):
+    from pathlib import Path
+
+    data = Path(__file__).parent / "data"
+    for kind in ("bad", "warn"):
+        for folder in sorted((data / kind).iterdir()):
+            findings, _, _ = check(scenario_tree(f"{kind}/{folder.name}"))
+            yield from findings.items
+
+
+def test_every_scenario_finding_has_a_registered_code(scenario_tree):
+    from bodyplan.ingest.findings import CODES
+
+    items = list(_scenario_findings(scenario_tree))
+    assert len(items) >= len(ERRORS) + len(WARNINGS)
+    assert [str(f) for f in items if f.code not in CODES] == []
+
+
+# The code of each scenario's finding: tests assert codes, the sentences may be reworded.
+SCENARIO_CODES = {
+    "unknown_unit": "V224", "wrong_dimension": "V224", "fraction_above_1": "V223", "negative_mass": "V216",
+    "unknown_species": "V208", "unknown_source_key": "V213", "duplicate_id": "V207", "missing_column": "R108",
+    "non_utf8": "R101", "empty_value_without_reason": "V214", "out_of_range": "W301",
+    "mass_fractions_above_1": "W302",
+}
+
+
+@pytest.mark.parametrize("scenario", sorted(SCENARIO_CODES))
+def test_scenario_code(scenario, scenario_tree):
+    kind = "bad" if scenario in ERRORS else "warn"
+    findings, _, _ = check(scenario_tree(f"{kind}/{scenario}"))
+    assert [f.code for f in findings.sorted()] == [SCENARIO_CODES[scenario]]

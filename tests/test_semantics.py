@@ -71,7 +71,7 @@ def test_unknown_method(tree):
     line = add(tree, V, id="x", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg",
                method="guesswork")
     assert errors(tree) == [(f"{V}:{line}: method: unknown method 'guesswork'; use an id from vocab/methods.csv "
-                             "or add it there", "method-unknown")]
+                             "or add it there", "V208")]
 
 
 def test_method_not_for_this_quantity(tree):
@@ -79,20 +79,20 @@ def test_method_not_for_this_quantity(tree):
                method="thermodilution")
     assert errors(tree) == [(f"{V}:{line}: method: method 'thermodilution' does not measure gfr; it applies to "
                              "blood_flow, cardiac_output (vocab/methods.csv); pick the method the source used for this quantity",
-                             "method-wrong-quantity")]
+                             "V227")]
 
 
 def test_unknown_part(tree):
     line = add(tree, V, id="x", compartment="kidney", quantity="tissue_mass", value="0.05", unit="kg",
                part="left_half")
     assert errors(tree) == [(f"{V}:{line}: part: unknown part 'left_half'; use an id from vocab/parts.csv or add it "
-                             "there", "part-unknown")]
+                             "there", "V208")]
 
 
 def test_class_of_another_species(tree):
     line = add(tree, V, id="x", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg", **{"class": "broiler"})
     assert errors(tree) == [(f"{V}:{line}: class: unknown class 'broiler' for this species; use a class of the "
-                             "row's species from vocab/classes.csv or add it there", "class-unknown")]
+                             "row's species from vocab/classes.csv or add it there", "V208")]
 
 
 def test_class_of_its_species_is_fine(tree):
@@ -101,9 +101,9 @@ def test_class_of_its_species_is_fine(tree):
 
 
 @pytest.mark.parametrize("age, message, code", [
-    ("-3 week", "'-3 week' is negative; give the age since birth or hatching", "age-negative"),
-    ("3 kg", "'3 kg' is not an age; write e.g. '10 year'", "age-unreadable"),
-    ("3 weeks old", "cannot read '3 weeks old'; write e.g. '10 year'", "age-unreadable"),
+    ("-3 week", "'-3 week' is negative; give an age of zero or more", "V231"),
+    ("3 kg", "'3 kg' is not an age; write e.g. '10 year'", "V225"),
+    ("3 weeks old", "cannot read '3 weeks old'; write e.g. '10 year'", "V225"),
 ])
 def test_bad_age(tree, age, message, code):
     line = add(tree, V, id="x", age=age, compartment="liver", quantity="tissue_mass", value="0.3", unit="kg")
@@ -123,13 +123,13 @@ def test_denominator_only_for_body_mass_fractions(tree):
     line = add(tree, V, id="x", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg",
                denominator="empty_body")
     assert errors(tree) == [(f"{V}:{line}: denominator: 'empty_body' is only for fractions of body mass or "
-                             "per-kg-body-mass values; clear it", "denominator-not-applicable")]
+                             "per-kg-body-mass values; clear it", "V228")]
 
 
 def test_assumed_uncertainty_needs_sd_or_se(tree):
     line = add(tree, V, id="x", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg",
                uncertainty_assumed="yes")
-    assert [code for _m, code in errors(tree)] == ["uncertainty-assumed-kind"]
+    assert [code for _m, code in errors(tree)] == ["V229"]
     assert errors(tree)[0][0].startswith(f"{V}:{line}: uncertainty_assumed: is yes, but")
 
 
@@ -137,7 +137,7 @@ def test_single_animal_with_n_above_1(tree):
     line = add(tree, V, id="x", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg", n="5",
                statistic="single_animal")
     assert errors(tree) == [(f"{V}:{line}: statistic: is single_animal but n is above 1; give the group's "
-                             "statistic or n = 1", "single-animal-n")]
+                             "statistic or n = 1", "V230")]
 
 
 def test_unknown_statistic_and_n_counts(tree):
@@ -157,13 +157,13 @@ def test_group_relation_to_a_missing_group(tree):
     write_groups(tree, "testsource2020,all,male femal,,")
     assert errors(tree) == [("groups.csv:2: contains: group 'femal' of testsource2020 is used by no row of "
                              "values/testsource2020.csv and declared nowhere in groups.csv; fix the id or the rows' "
-                             "group", "group-unknown")]
+                             "group", "V232")]
 
 
 def test_group_relation_of_a_missing_source(tree):
     write_groups(tree, "nosuchsource,all,male female,,")
     assert errors(tree) == [("groups.csv:2: source: unknown source 'nosuchsource'; use a citation key from "
-                             "sources.bib", "group-source-unknown")]
+                             "sources.bib", "V233")]
 
 
 def test_groups_in_a_circle(tree):
@@ -171,7 +171,7 @@ def test_groups_in_a_circle(tree):
         add(tree, V, id=f"x_{g}", group=g, compartment="liver", quantity="tissue_mass", value="0.3", unit="kg")
     write_groups(tree, "testsource2020,a,b,,", "testsource2020,b,a,,")
     found = errors(tree)
-    assert {code for _m, code in found} == {"group-cycle"}
+    assert {code for _m, code in found} == {"V234"}
     assert found[0][0] == ("groups.csv:2: contains: group 'a' of testsource2020 contains itself through its "
                            "subgroups; a subgroup is smaller than its group")
 
@@ -193,14 +193,14 @@ def add_bib_field(root: Path, key: str, field: str) -> None:
 
 def test_derived_from_a_missing_source(tree):
     add_bib_field(tree, "testsource2021", "derived_from = {nosuch1999}")
-    assert errors(tree) == [("sources.bib:7: derived_from: entry 'testsource2021' names 'nosuch1999', which is not "
-                             "in sources.bib; add that source first or fix the key", "derived-from-unknown")]
+    assert errors(tree) == [("sources.bib:8: derived_from: entry 'testsource2021' names 'nosuch1999', which is not "
+                             "in sources.bib; add that source first or fix the key", "V235")]
 
 
 def test_derived_from_itself(tree):
     add_bib_field(tree, "testsource2020", "derived_from = {testsource2020}")
     assert errors(tree) == [("sources.bib:1: derived_from: entry 'testsource2020' names itself; give the key of the "
-                             "source whose numbers it reprints", "derived-from-self")]
+                             "source whose numbers it reprints", "V236")]
 
 
 def test_derived_from_in_a_circle(tree):
@@ -208,7 +208,7 @@ def test_derived_from_in_a_circle(tree):
     add_bib_field(tree, "testsource2021", "derived_from = {testsource2020}")
     assert errors(tree) == [("sources.bib:1: derived_from: derived_from runs in a circle (testsource2020 → "
                              "testsource2021 → testsource2020); one of them must be the original",
-                             "derived-from-cycle")]
+                             "V237")]
 
 
 def test_derived_from_reaches_the_store(tree, tmp_path):
@@ -226,7 +226,7 @@ def test_method_vocabulary_names_known_quantities(tree):
     path.write_text(path.read_text().replace("thermodilution,thermodilution,cardiac_output blood_flow,",
                                              "thermodilution,thermodilution,cardiac_outptu,"))
     found = errors(tree)
-    assert [code for _m, code in found] == ["method-quantity-unknown"]
+    assert [code for _m, code in found] == ["V238"]
     assert ": quantities: unknown quantity 'cardiac_outptu'" in found[0][0]
 
 
@@ -249,7 +249,7 @@ def test_new_columns_reach_the_store_with_defaults(tree, tmp_path):
 
 def test_organ_above_body_mass(tree):
     line = add(tree, V, id="x", compartment="muscle", quantity="tissue_mass", value="15", unit="kg", body_mass="12 kg")
-    assert warnings(tree, "organ-above-body-mass") == [
+    assert warnings(tree, "W305") == [
         f"{V}:{line}: value: warning: 15 kg of muscle is more than the body mass 12 kg of its animals; check the "
         "unit, the number and the body mass"]
 
@@ -257,7 +257,7 @@ def test_organ_above_body_mass(tree):
 def test_organ_above_the_sources_body_mass_row(tree):
     # the good tree's dog_bm row (12 kg, 3 year, male Beagle) is the body mass of these animals
     line = add(tree, V, id="x", age="3 year", compartment="muscle", quantity="tissue_mass", value="13", unit="kg")
-    assert warnings(tree, "organ-above-body-mass") == [
+    assert warnings(tree, "W305") == [
         f"{V}:{line}: value: warning: 13 kg of muscle is more than the body mass 12 kg of its animals; check the "
         "unit, the number and the body mass"]
 
@@ -266,7 +266,7 @@ def test_parts_above_their_whole(tree):
     whole = add(tree, V, id="k", compartment="kidney", quantity="tissue_mass", value="60", unit="g")
     add(tree, V, id="kl", compartment="left_kidney", quantity="tissue_mass", value="35", unit="g")
     add(tree, V, id="kr", compartment="right_kidney", quantity="tissue_mass", value="34", unit="g")
-    assert warnings(tree, "parts-above-whole") == [
+    assert warnings(tree, "W306") == [
         f"{V}:{whole}: value: warning: the parts left_kidney + right_kidney of these animals sum to 0.069 kg, above "
         "the whole kidney (tissue) 0.06 kg; check the compartments and parts of these rows"]
 
@@ -276,7 +276,7 @@ def test_contents_above_organ_with_contents(tree):
                 part="with_contents")
     add(tree, V, id="sc", compartment="stomach", quantity="tissue_mass", value="150", unit="g", part="contents")
     add(tree, V, id="st", compartment="stomach", quantity="tissue_mass", value="80", unit="g")
-    assert warnings(tree, "parts-above-whole") == [
+    assert warnings(tree, "W306") == [
         f"{V}:{whole}: value: warning: the parts stomach (contents) + stomach of these animals sum to 0.23 kg, above "
         "the whole stomach (with_contents) 0.2 kg; check the compartments and parts of these rows"]
 
@@ -285,7 +285,7 @@ def test_parts_of_other_animals_are_not_summed(tree):
     add(tree, V, id="k", group="a", compartment="kidney", quantity="tissue_mass", value="60", unit="g")
     add(tree, V, id="kl", group="b", compartment="left_kidney", quantity="tissue_mass", value="35", unit="g")
     add(tree, V, id="kr", group="b", compartment="right_kidney", quantity="tissue_mass", value="34", unit="g")
-    assert warnings(tree, "parts-above-whole") == []
+    assert warnings(tree, "W306") == []
 
 
 def test_method_not_accepted_for_birds(tree):
@@ -293,7 +293,7 @@ def test_method_not_accepted_for_birds(tree):
                value="8.4", unit="mL/min/kg", method="exogenous_creatinine_clearance")
     add(tree, V, id="y", compartment="whole_body", quantity="gfr", value="3.5", unit="mL/min/kg",
         method="exogenous_creatinine_clearance")  # a dog: accepted
-    found = warnings(tree, "method-not-accepted")
+    found = warnings(tree, "W307")
     assert len(found) == 1 and found[0].startswith(
         f"{V}:{line}: method: warning: exogenous_creatinine_clearance is not accepted for gfr of chicken (birds:")
     assert "(Gasthuys et al. 2019)" in found[0]
@@ -304,7 +304,7 @@ def test_method_refused_for_one_quantity_only(tree):
              value="45", unit="mL/kg", method="dye_dilution")
     add(tree, V, id="co", species="rainbow_trout", strain="", compartment="whole_body", quantity="cardiac_output",
         value="1.1", unit="L/h/kg", method="dye_dilution")
-    found = warnings(tree, "method-not-accepted")
+    found = warnings(tree, "W307")
     assert [f.split(": warning")[0] for f in found] == [f"{V}:{bv}: method"]
 
 
@@ -312,14 +312,14 @@ def test_same_group_counted_twice(tree):
     first = add(tree, V, id="a", compartment="spleen", quantity="tissue_mass", value="30", unit="g")
     second = add(tree, V, id="b", compartment="spleen", quantity="tissue_mass", value="32", unit="g")
     add(tree, V, id="c", group="other", compartment="spleen", quantity="tissue_mass", value="31", unit="g")
-    assert warnings(tree, "duplicate-group") == [
+    assert warnings(tree, "W308") == [
         f"{V}:{second}: group: warning: group 'all' already has tissue_mass of spleen by the same method at line "
         f"{first} (row a); give each set of animals its own group (e.g. one per diet or age), or keep one of the rows"]
 
 
 def test_two_forms_of_one_measurement_are_not_a_duplicate(tree):
     # the good tree gives human cardiac output per m² and per kg for the same group: one number, two forms
-    assert warnings(tree, "duplicate-group") == []
+    assert warnings(tree, "W308") == []
 
 
 def test_group_and_its_subgroup_overlap(tree):
@@ -327,7 +327,7 @@ def test_group_and_its_subgroup_overlap(tree):
     sub = add(tree, V, id="m", group="male", compartment="spleen", quantity="tissue_mass", value="32", unit="g")
     add(tree, V, id="f", group="female", compartment="heart", quantity="tissue_mass", value="80", unit="g")
     write_groups(tree, "testsource2020,all,male female,,")
-    assert warnings(tree, "overlapping-groups") == [
+    assert warnings(tree, "W309") == [
         f"{V}:{sub}: group: warning: group 'male' lies within group 'all' (groups.csv), which also gives tissue_mass "
         f"of spleen at line {whole}; pooling uses one of them; accept this warning in check_baseline.csv once reviewed"]
 
@@ -335,7 +335,7 @@ def test_group_and_its_subgroup_overlap(tree):
 def test_range_end_stored_as_value(tree):
     line = add(tree, V, id="x", compartment="spleen", quantity="tissue_mass", value="40", unit="g",
                uncertainty="range", low="25", high="40")
-    assert warnings(tree, "range-end-as-value") == [
+    assert warnings(tree, "W310") == [
         f"{V}:{line}: value: warning: 40 equals the range's high end; a range end is not a central value: give the "
         "source's mean or median, or the midpoint with statistic reference_midpoint"]
 
@@ -343,7 +343,7 @@ def test_range_end_stored_as_value(tree):
 def test_range_end_quoted_in_the_comment(tree):
     line = add(tree, V, id="x", compartment="spleen", quantity="tissue_mass", value="25", unit="g",
                comment="invented for tests; spleen mass from 25 to 40 g")
-    assert warnings(tree, "range-end-as-value") == [
+    assert warnings(tree, "W310") == [
         f"{V}:{line}: value: warning: 25 is an end of the range 25 to 40 the comment quotes; a range goes in low and "
         "high (uncertainty range), the value is the central value or the midpoint with statistic reference_midpoint"]
 
@@ -353,7 +353,7 @@ def test_midpoint_off_the_middle(tree):
                uncertainty="range", low="25", high="45", statistic="reference_midpoint")
     add(tree, V, id="y", compartment="heart", quantity="tissue_mass", value="35", unit="g",
         uncertainty="range", low="25", high="45", statistic="reference_midpoint")
-    assert warnings(tree, "midpoint-not-middle") == [
+    assert warnings(tree, "W311") == [
         f"{V}:{line}: value: warning: 30 is marked reference_midpoint but the middle of 25..45 is 35; give the "
         "midpoint, or the statistic the source prints"]
 
@@ -361,12 +361,12 @@ def test_midpoint_off_the_middle(tree):
 def test_fraction_of_empty_body_needs_the_ratio(tree):
     line = add(tree, W, id="x", compartment="liver", quantity="tissue_mass_fraction", value="1.4", unit="%",
                denominator="empty_body")
-    assert warnings(tree, "denominator-without-ratio") == [
+    assert warnings(tree, "W312") == [
         f"{W}:{line}: denominator: warning: a fraction of empty body mass, but this source gives no "
         "empty_body_mass_fraction of dog; add the source's ratio (whole_body, empty_body_mass_fraction) so the row "
         "can be converted to live body mass"]
     add(tree, W, id="ebm", compartment="whole_body", quantity="empty_body_mass_fraction", value="0.92", unit="1")
-    assert warnings(tree, "denominator-without-ratio") == []
+    assert warnings(tree, "W312") == []
 
 
 # --- checking named files, and the baseline of accepted warnings -------------------------------------------
@@ -376,7 +376,7 @@ def test_check_files_reports_only_the_named_file(tree):
     add(tree, W, id="y", compartment="muscle", quantity="tissue_mass", value="90", unit="kg", body_mass="70 kg")
     result = check_files([tree / W])
     assert {f.file for f in result.warnings} == {W} and result.accepted == []
-    assert [f.code for f in result.warnings if f.code == "organ-above-body-mass"] == ["organ-above-body-mass"]
+    assert [f.code for f in result.warnings if f.code == "W305"] == ["W305"]
     assert result.rows == 4 and result.root == tree.resolve()
 
 
@@ -384,16 +384,16 @@ def test_baseline_sets_reviewed_warnings_apart(tree):
     a = add(tree, V, id="a", compartment="spleen", quantity="tissue_mass", value="30", unit="g")
     b = add(tree, V, id="b", compartment="spleen", quantity="tissue_mass", value="32", unit="g")
     c = add(tree, V, id="c", compartment="spleen", quantity="tissue_mass", value="33", unit="g")
-    assert [f.line for f in check_files([tree / V]).warnings if f.code == "duplicate-group"] == [b, c]
+    assert [f.line for f in check_files([tree / V]).warnings if f.code == "W308"] == [b, c]
     (tree / "check_baseline.csv").write_text("file,row_id,code,note\n"
-                                             f"{V},b,duplicate-group,invented for tests: reviewed\n")
+                                             f"{V},b,W308,invented for tests: reviewed\n")
     result = check_files([tree / V])
-    assert [f.line for f in result.warnings if f.code == "duplicate-group"] == [c]
-    assert [(f.line, f.code) for f in result.accepted] == [(b, "duplicate-group")]
+    assert [f.line for f in result.warnings if f.code == "W308"] == [c]
+    assert [(f.line, f.code) for f in result.accepted] == [(b, "W308")]
     assert a < b and result.stale == []
     (tree / "check_baseline.csv").write_text("file,row_id,code,note\n"
-                                             f"{V},a,duplicate-group,invented for tests: no longer warned\n")
-    assert check_files([tree / V]).stale == [(V, "a", "duplicate-group")]
+                                             f"{V},a,W308,invented for tests: no longer warned\n")
+    assert check_files([tree / V]).stale == [(V, "a", "W308")]
 
 
 def test_check_files_refuses_files_of_two_trees(tree, tmp_path):

@@ -372,7 +372,7 @@ def test_parameter_set_page_matches_params_and_downloads_reproduce_it(store, sit
     page, as_json, as_csv, as_sbml = fetch(site, *[("GET", base + ext) for ext in ("", ".json", ".csv", ".sbml.xml")])
     assert [r.status_code for r in (page, as_json, as_csv, as_sbml)] == [200] * 4
     command = re.search(r"bodyplan params [^<]*", page.text).group(0).strip()
-    assert command.startswith(f"bodyplan params {sp} --stage adult --layout whole_body")
+    assert command.startswith(f"bodyplan params {sp} --life-stage adult --layout whole_body")
     assert ("--allow-gaps" in command) == bool(as_json.json()["gaps"])  # gaps are exported marked, never hidden
     args = command.split()[1:] + ["--store", str(store)]
     for fmt, response in (("json", as_json), ("csv", as_csv), ("sbml", as_sbml)):

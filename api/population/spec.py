@@ -16,6 +16,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
+from ...errors import BodyplanError
 from ...schema.model import LIVER, PORTAL_ORGANS, VESSELS_OF_LIVER, has_own_flow, is_portal, is_pulmonary, slot_id
 from ..layouts import REST
 from ..parameters import REST_DENSITY, parameter_set
@@ -29,7 +30,7 @@ WITHOUT_SD = ("fixed", "default_cv")
 BALANCE_RULES = ("redraw", "rescale")
 
 
-class PopulationError(ValueError):
+class PopulationError(BodyplanError, ValueError):
     """A population request that cannot be drawn as asked."""
 
 

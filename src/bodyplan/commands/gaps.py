@@ -6,7 +6,14 @@ from pathlib import Path
 
 import click
 
-from ..output import emit, format_option, store_option
+from ..output import choose_ids, emit, force_option, format_option, guard_out, renamed_option, store_option
+
+
+def _guard_report(out: str, store_file, force: bool) -> None:
+    suffix = Path(out).suffix.lower()
+    if suffix not in (".png", ".html", ".htm"):
+        raise click.BadParameter(f"{out}: write a .html report or a .png heatmap", param_hint="--out")
+    guard_out(out, kind="png" if suffix == ".png" else "text", suffixes=(suffix,), inputs=[store_file], force=force)
 
 
 def _write_report(report, out: str, store) -> str:
@@ -26,19 +33,26 @@ def _write_report(report, out: str, store) -> str:
 
 @click.command("gaps")
 @click.option("--species", "species", multiple=True, help="Species id (repeatable; default: every species).")
-@click.option("--stage", default="adult", show_default=True,
-              help="Life stage, or 'all' for every stage with data (plus adult for every species).")
+@renamed_option("--life-stage", "--stage", "stage", default="adult", show_default=True,
+                help="Life stage, or 'all' for every stage with data (plus adult for every species).")
 @click.option("--layout", default="whole_body", show_default=True, help="Layout name (whole_body, rich_slow) or a .toml file.")
 @format_option()
 @click.option("--out", type=click.Path(dir_okay=False), default=None,
               help="Also write the report: FILE.html (self-contained) or FILE.png (the heatmap).")
+@force_option
 @store_option
-def gaps_cmd(species, stage, layout, fmt, out, store_path):
+def gaps_cmd(species, stage, layout, fmt, out, force, store_path):
     """Coverage of each species × parameter, readiness per species, and what to curate next."""
-    from ..api import open_store
+    from ..api import locate_store, open_store
 
-    store = open_store(store_path)
-    report = store.gap_report(list(species) or None, life_stage=stage, layout=layout)
+    store_file = locate_store(store_path)
+    if out:
+        _guard_report(out, store_file, force)
+    store = open_store(store_file)
+    species = choose_ids(store, "species", list(species) or None, "species", "--species")
+    if stage != "all":
+        stage = choose_ids(store, "life_stages", stage, "life stage", "--life-stage")
+    report = store.gap_report(species, life_stage=stage, layout=layout)
     if out:
         click.echo(f"wrote {_write_report(report, out, store)}", err=True)
     if fmt == "json":
@@ -65,28 +79,37 @@ def gaps_cmd(species, stage, layout, fmt, out, store_path):
 @click.command("allometry")
 @click.argument("quantity")
 @click.option("--compartment", default=None, help="Compartment id (default: the one the quantity is stored on).")
-@click.option("--stage", default="adult", show_default=True, help="Life stage.")
-@click.option("--class", "taxon_class", type=click.Choice(["mammals", "birds", "fish", "all"]), default="mammals",
-              show_default=True, help="Which species to fit over.")
+@renamed_option("--life-stage", "--stage", "stage", default="adult", show_default=True, help="Life stage.")
+@click.option("--class", "taxon_class", type=click.Choice(["mammals", "birds", "fish", "all"], case_sensitive=False),
+              default="mammals", show_default=True, help="Which species to fit over.")
 @format_option(choices=["table", "json"])
 @click.option("--out", type=click.Path(dir_okay=False), default=None, help="Write the log–log plot to FILE.png.")
 @click.option("--predict", "predict_species", default=None, help="Predict the quantity for this species.")
-@click.option("--body-weight", default=None, help='Body weight for --predict, e.g. "12 kg" (default: the '
-              "species' stored body mass).")
+@renamed_option("--body-mass", "--body-weight", "body_weight", default=None,
+                help='Body mass for --predict, e.g. "12 kg" (default: the species\' stored body mass).')
+@force_option
 @store_option
-def allometry_cmd(quantity, compartment, stage, taxon_class, fmt, out, predict_species, body_weight, store_path):
+def allometry_cmd(quantity, compartment, stage, taxon_class, fmt, out, predict_species, body_weight, force,
+                  store_path):
     """Fit QUANTITY = a · (body mass)^b across species, one point per species, with 95 % intervals."""
     from .. import CAUTION
-    from ..api import open_store
+    from ..api import locate_store, open_store
 
-    store = open_store(store_path)
+    store_file = locate_store(store_path)
+    if out:
+        if Path(out).suffix.lower() != ".png":
+            raise click.BadParameter(f"{out}: the plot is written as .png", param_hint="--out")
+        guard_out(out, kind="png", suffixes=(".png",), inputs=[store_file], force=force)
+    store = open_store(store_file)
+    quantity = choose_ids(store, "quantities", quantity, "quantity")
+    compartment = choose_ids(store, "compartments", compartment, "compartment", "--compartment")
+    stage = choose_ids(store, "life_stages", stage, "life stage", "--life-stage")
+    predict_species = choose_ids(store, "species", predict_species, "species", "--predict")
     result = store.allometry(quantity, compartment=compartment, life_stage=stage, taxon_class=taxon_class)
     prediction = None
     if predict_species or body_weight:
         prediction = _prediction(store, result, predict_species, body_weight, stage)
     if out:
-        if Path(out).suffix.lower() != ".png":
-            raise click.BadParameter(f"{out}: the plot is written as .png", param_hint="--out")
         from ..report.allometry_plot import write_allometry_png
 
         write_allometry_png(result, out, prediction, predict_species)
@@ -131,20 +154,18 @@ def _prediction(store, result, species, body_weight, stage) -> dict:
     from ..api.allometry import AllometryError, species_body_mass
     from ..units import to_quantity
 
-    if species:
-        store.require("species", species, "species")
     if body_weight:
-        try:
-            kg = float(to_quantity(body_weight, "kg").to("kg").magnitude)
-        except Exception as exc:
-            raise AllometryError(f"body weight {body_weight!r} is not a mass: {exc}") from None
+        q = to_quantity(body_weight)  # UnitError names a malformed text
+        if not q.check("[mass]"):
+            raise AllometryError(f"body mass {body_weight!r} is not a mass; write e.g. '12 kg'")
+        kg = float(q.to("kg").magnitude)
         basis = "given"
     else:
         kg, basis = species_body_mass(store, species, stage)
         if kg is None:
-            raise AllometryError(f"no body mass stored for {species} ({stage}); give --body-weight")
+            raise AllometryError(f"no body mass stored for {species} ({stage}); give --body-mass")
     if kg <= 0:
-        raise AllometryError(f"body weight must be positive, got {body_weight!r}")
+        raise AllometryError(f"body mass must be positive, got {body_weight!r}")
     out = result.predict(kg)
     out.update(species=species, body_mass_from=basis)
     if species in set(result.points["species"]):

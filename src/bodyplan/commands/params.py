@@ -6,10 +6,10 @@ import sys
 
 import click
 
-from ..output import store_option
+from ..output import choose_ids, force_option, guard_out, renamed_option, store_option, to_json
 
 
-def _fmt(value, sd=None, se=None, low=None, high=None) -> str:
+def _value_text(value, sd=None, se=None, low=None, high=None) -> str:
     if value is None:
         return "—"
     text = f"{value:.4g}"
@@ -32,7 +32,7 @@ def render_table(ps, file=None) -> None:
     console = Console(file=file or sys.stdout, width=None if (file or sys.stdout).isatty() else 160)
     bw, co = d["body_mass"], d["cardiac_output"]
     title = (f"{ps.species}, {ps.life_stage}{', ' + ps.sex if ps.sex else ''}: {ps.layout.name} layout, "
-             f"body mass {_fmt(bw['value'])} kg ({bw['origin']})")
+             f"body mass {_value_text(bw['value'])} kg ({bw['origin']})")
     table = Table(title=title, title_justify="left")
     for name, justify in (("compartment", "left"), (f"volume ({d['compartments'][0]['volume']['unit']})", "right"),
                           ("how", "left"), (f"blood flow ({co['unit']})", "right"), ("how", "left"),
@@ -45,7 +45,7 @@ def render_table(ps, file=None) -> None:
         return f"[{colour}]{text}[/]" if colour else text
 
     def val(cell):
-        v = _fmt(cell["value"], cell["sd"], cell["se"], *(cell.get("interval") or (None, None)))
+        v = _value_text(cell["value"], cell["sd"], cell["se"], *(cell.get("interval") or (None, None)))
         return "[bold red]gap[/]" if cell["origin"] == "gap" else v
 
     def short(sources):  # the JSON and CSV keep every source; the table names a few
@@ -69,7 +69,7 @@ def render_table(ps, file=None) -> None:
         style = {"pass": "green", "warn": "yellow", "fail": "bold red"}[check["status"]]
         console.print(f"[{style}]{check['status']}[/] {check['check']}: {check['detail']}")
     if d["gaps"]:
-        hint = ("give --body-weight to scale to" if bw["origin"] == "gap" else
+        hint = ("give --body-mass to scale to" if bw["origin"] == "gap" else
                 "fill them from other species with --fill allometric" if ps.fill == "none" else
                 "too few species have these to fit across species")
         console.print(f"[bold red]{len(d['gaps'])} gap(s)[/]; {hint}, or curate a source "
@@ -77,17 +77,21 @@ def render_table(ps, file=None) -> None:
     console.print(f"[italic]{CAUTION}[/]")
 
 
+OUT_SUFFIXES = {"json": (".json",), "csv": (".csv",), "sbml": (".xml", ".sbml"), "table": (".txt",)}
+
+
 @click.command("params")
 @click.argument("species")
-@click.option("--stage", "life_stage", default="adult", show_default=True, help="Life stage id.")
-@click.option("--sex", type=click.Choice(["male", "female"]), default=None, help="Use rows of this sex (and mixed).")
-@click.option("--body-weight", default=None, help='Body weight with a unit, e.g. "12 kg" or "26 lb" '
-              "(default: the species' typical body mass).")
+@renamed_option("--life-stage", "--stage", "life_stage", default="adult", show_default=True, help="Life stage id.")
+@click.option("--sex", type=click.Choice(["male", "female"], case_sensitive=False), default=None,
+              help="Use rows of this sex (and mixed).")
+@renamed_option("--body-mass", "--body-weight", "body_weight", default=None,
+                help='Body mass with a unit, e.g. "12 kg" or "26 lb" (default: the species\' typical body mass).')
 @click.option("--layout", default="whole_body", show_default=True,
               help="whole_body, rich_slow, or a TOML layout file.")
-@click.option("--fill", type=click.Choice(["none", "allometric"]), default="none", show_default=True,
-              help="Fill gaps from a cross-species allometric fit (recorded on each value).")
-@click.option("--units", type=click.Choice(["SI", "clinical"]), default="SI", show_default=True,
+@click.option("--fill", type=click.Choice(["none", "allometric"], case_sensitive=False), default="none",
+              show_default=True, help="Fill gaps from a cross-species allometric fit (recorded on each value).")
+@click.option("--units", type=click.Choice(["SI", "clinical"], case_sensitive=False), default="SI", show_default=True,
               help="SI: L and L/h; clinical: mL and mL/min.")
 @click.option("--format", "fmt", type=click.Choice(["table", "csv", "json", "sbml"]), default="table",
               show_default=True, help="Output format.")
@@ -96,20 +100,35 @@ def render_table(ps, file=None) -> None:
 @click.option("--verified-only", is_flag=True, help="Use only rows read in their source text.")
 @click.option("--allow-gaps", is_flag=True, help="SBML: export a set with gaps, each marked and set to NaN.")
 @click.option("--out", type=click.Path(dir_okay=False), default=None, help="Write to a file instead of stdout.")
+@force_option
 @store_option
 def params_cmd(species, life_stage, sex, body_weight, layout, fill, units, fmt, stage_fallback, verified_only,
-               allow_gaps, out, store_path):
-    """A model-ready parameter set for SPECIES, scaled to a body weight, every gap marked."""
-    from ..api import open_store
+               allow_gaps, out, force, store_path):
+    """A model-ready parameter set for SPECIES, scaled to a body mass, every gap marked."""
+    from pathlib import Path
 
-    ps = open_store(store_path).parameter_set(species, life_stage=life_stage, sex=sex, body_mass=body_weight,
-                                              layout=layout, fill=fill, units=units, stage_fallback=stage_fallback,
-                                              verified_only=verified_only)
-    text = {"json": ps.to_json, "csv": ps.to_csv, "sbml": lambda: ps.to_sbml(allow_gaps=allow_gaps)}.get(fmt)
+    from ..api import locate_store, open_store
+
+    store_file = locate_store(store_path)
     if out:
+        layout_file = [Path(layout)] if Path(layout).suffix == ".toml" else []
+        guard_out(out, kind="text", suffixes=OUT_SUFFIXES[fmt], inputs=[store_file, *layout_file], force=force)
+    if body_weight is not None:
+        from ..units import to_quantity
+
+        to_quantity(body_weight)  # the strict grammar names a malformed body mass before anything runs
+    store = open_store(store_file)
+    species = choose_ids(store, "species", species, "species")
+    life_stage = choose_ids(store, "life_stages", life_stage, "life stage", "--life-stage")
+    ps = store.parameter_set(species, life_stage=life_stage, sex=sex, body_mass=body_weight, layout=layout,
+                             fill=fill, units=units, stage_fallback=stage_fallback, verified_only=verified_only)
+    text = {"json": lambda: to_json(ps.to_dict()), "csv": ps.to_csv,
+            "sbml": lambda: ps.to_sbml(allow_gaps=allow_gaps)}.get(fmt)
+    if out:
+        content = text() if text else None  # computed first: a refused result leaves no half-written file
         with open(out, "w", encoding="utf-8", newline="\n") as fh:
             if text:
-                fh.write(text() if fmt != "json" else text() + "\n")
+                fh.write(content if fmt != "json" else content + "\n")
             else:
                 render_table(ps, file=fh)
         click.echo(f"wrote {out} ({fmt}, {len(ps.gaps)} gap(s))", err=True)

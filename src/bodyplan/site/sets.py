@@ -18,11 +18,11 @@ def _origin(cell: dict) -> str:
 
 def number_text(cell: dict) -> str:
     """'0.3744 [0.369–0.38]' or '4.7 ± 0.3', formatted by `bodyplan params` itself; 'gap' for a gap."""
-    from ..commands.params import _fmt
+    from ..commands.params import _value_text
 
     if _origin(cell) == "gap":
         return "gap"
-    return _fmt(cell.get("value"), cell.get("sd"), cell.get("se"), *(cell.get("interval") or (None, None)))
+    return _value_text(cell.get("value"), cell.get("sd"), cell.get("se"), *(cell.get("interval") or (None, None)))
 
 
 def state_colours() -> dict[str, str]:
@@ -126,7 +126,7 @@ class SiteData:
                 "blood_flow": self._cell(c["blood_flow"],
                                          self._rows_behind(species, stage, parts, "blood_flow", c["blood_flow"])),
             })
-        command = f"bodyplan params {species} --stage {stage} --layout {layout}" + (" --allow-gaps" if ps.gaps else "")
+        command = f"bodyplan params {species} --life-stage {stage} --layout {layout}" + (" --allow-gaps" if ps.gaps else "")
         return {"species": species, "life_stage": stage, "layout": layout, "lines": lines,
                 "compartments": compartments, "volume_unit": d["compartments"][0]["volume"]["unit"],
                 "flow_unit": d["cardiac_output"]["unit"], "liver_flow": d.get("liver_flow", ""),

@@ -7,15 +7,10 @@ from pathlib import Path
 
 import click
 
-from ..output import emit, format_option, store_option, to_json
-
-
-def _data_dir(data_dir) -> Path:
-    if data_dir:
-        return Path(data_dir)
-    from ..api.locate import bundled_data_dir
-
-    return bundled_data_dir()
+from ..errors import OutputError
+from ..output import (choose, choose_ids, emit, force_option, format_option, guard_out_dir, renamed_option,
+                      store_option, to_json)
+from .store_commands import data_dir_or_bundled as _data_dir
 
 
 @click.command("add")
@@ -66,7 +61,7 @@ def lint_cmd(data_dir, check_only):
     sys.exit(1 if report.problems or (check_only and report.changed) else 0)
 
 
-def _num(x) -> str:
+def _short_number(x) -> str:
     import pandas as pd
 
     return "" if x is None or pd.isna(x) else f"{x:.6g}"
@@ -78,16 +73,16 @@ def _trace_table(rows):
 
     def spread(r):
         if r["uncertainty"] in ("sd", "se", "cv"):
-            return f"{r['uncertainty']} {_num(r['spread'])}" + (" %" if r["uncertainty"] == "cv" else "")
+            return f"{r['uncertainty']} {_short_number(r['spread'])}" + (" %" if r["uncertainty"] == "cv" else "")
         if r["uncertainty"] in ("ci95", "range"):
-            return f"{r['uncertainty']} {_num(r['low'])}..{_num(r['high'])}"
+            return f"{r['uncertainty']} {_short_number(r['low'])}..{_short_number(r['high'])}"
         return "none"
 
     out = [{"compartment": r["compartment"], "source": r["source"], "locator": r["locator"], "row": r["row_id"],
-            "sex": r["sex"], "reported": f"{_num(r['value'])} {r['unit']}" if pd.notna(r["value"])
-            else "(missing; see --format json)", "uncertainty": spread(r), "n": _num(r["n"]),
-            "canonical": f"{_num(r['value_canonical'])} {r['unit_canonical']}" if pd.notna(r["value_canonical"])
-            else "", "sd (canonical)": _num(r["sd_canonical"]), "verified": "yes" if r["verified"] else "no",
+            "sex": r["sex"], "reported": f"{_short_number(r['value'])} {r['unit']}" if pd.notna(r["value"])
+            else "(missing; see --format json)", "uncertainty": spread(r), "n": _short_number(r["n"]),
+            "canonical": f"{_short_number(r['value_canonical'])} {r['unit_canonical']}" if pd.notna(r["value_canonical"])
+            else "", "sd (canonical)": _short_number(r["sd_canonical"]), "verified": "yes" if r["verified"] else "no",
             "used": ("yes" if r["used"] else f"no: {r['left_out']}" if r.get("left_out") else "no")
             if "used" in r else "",
             "at": f"{r['file']}:{r['line']}"} for r in rows.to_dict("records")]
@@ -100,20 +95,21 @@ def _combination_line(c: dict) -> str:
     head = f"parameter set: {c['compartment']} {c['parameter']}"
     if c["value"] is None:
         return f"{head}: gap ({c['reason']})"
-    spread = f", se {_num(c['se'])}" if c.get("se") is not None else \
-        f", sd {_num(c['sd'])}" if c.get("sd") is not None else ""
+    spread = f", se {_short_number(c['se'])}" if c.get("se") is not None else \
+        f", sd {_short_number(c['sd'])}" if c.get("sd") is not None else ""
     kind = "95 % prediction interval" if "prediction interval" in (c["method"] or "") else "range of study values"
-    span = f", {kind} {_num(c['low'])}..{_num(c['high'])}" if c.get("low") is not None else ""
+    span = f", {kind} {_short_number(c['low'])}..{_short_number(c['high'])}" if c.get("low") is not None else ""
     studies = f"{c['n_studies']} stud{'y' if c['n_studies'] == 1 else 'ies'}"
-    return f"{head} = {_num(c['value'])} {c['unit']}{spread}{span}; {c['method']}; {studies}; rows used:"
+    return f"{head} = {_short_number(c['value'])} {c['unit']}{spread}{span}; {c['method']}; {studies}; rows used:"
 
 
 @click.command("trace")
 @click.argument("species")
 @click.argument("quantity")
 @click.argument("compartment", required=False)
-@click.option("--stage", "life_stage", default="adult", show_default=True, help="Life stage id.")
-@click.option("--sex", default=None, help="Rows of this sex plus mixed and unknown ones, as a parameter set of that sex uses them.")
+@renamed_option("--life-stage", "--stage", "life_stage", default="adult", show_default=True, help="Life stage id.")
+@click.option("--sex", default=None, help="Rows of this sex (male, female, mixed, unknown) plus mixed and unknown "
+              "ones, as a parameter set of that sex uses them.")
 @format_option()
 @store_option
 def trace_cmd(species, quantity, compartment, life_stage, sex, fmt, store_path):
@@ -122,7 +118,15 @@ def trace_cmd(species, quantity, compartment, life_stage, sex, fmt, store_path):
     from ..api import open_store
     from ..api.trace import trace
 
-    result = trace(open_store(store_path), species, quantity, compartment, life_stage=life_stage, sex=sex)
+    store = open_store(store_path)
+    species = choose_ids(store, "species", species, "species")
+    quantity = choose_ids(store, "quantities", quantity, "quantity")
+    compartment = choose_ids(store, "compartments", compartment, "compartment")
+    life_stage = choose_ids(store, "life_stages", life_stage, "life stage", "--life-stage")
+    from ..schema.descriptors import SEXES
+
+    sex = None if sex is None else choose(sex, SEXES, "sex", "--sex")
+    result = trace(store, species, quantity, compartment, life_stage=life_stage, sex=sex)
     if fmt == "json":
         click.echo(to_json(result.to_dict()))
         return
@@ -137,7 +141,7 @@ def trace_cmd(species, quantity, compartment, life_stage, sex, fmt, store_path):
         click.echo(_combination_line(c))
         for r in c["rows_used"]:
             click.echo(f"    {r['source']} {r['row_id']} ({r['quantity']} in {r['compartment']}, route {r['route']}): "
-                       f"{_num(r['value_in_unit'])}  {r['at']}")
+                       f"{_short_number(r['value_in_unit'])}  {r['at']}")
     if result.note:
         click.echo(f"note: {result.note}")
     click.echo(CAUTION)
@@ -178,16 +182,22 @@ def diff_cmd(old_store, new_store, fmt):
 
 
 @click.command("export")
-@click.option("--format", "fmt", type=click.Choice(["csv", "json", "parquet"]), default="csv", show_default=True,
+@click.option("--format", "fmt", type=click.Choice(["csv", "json"]), default="csv", show_default=True,
               help="File format of the tables.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default="bodyplan-export", show_default=True,
               help="Folder to write the tables and datapackage.json into.")
+@force_option
 @store_option
-def export_cmd(fmt, out_dir, store_path):
+def export_cmd(fmt, out_dir, force, store_path):
     """The whole store as tidy files with a Frictionless data package descriptor (datapackage.json)."""
-    from ..api import open_store
+    from ..api import locate_store, open_store
     from ..api.export import export_store
 
-    store = open_store(store_path)
+    store_file = locate_store(store_path)
+    # a folder holding other files (curated vocabularies, say) is refused: export would overwrite them
+    guard_out_dir(out_dir, marker="datapackage.json", force=force)
+    if (Path(out_dir) / store_file.name).exists() and (Path(out_dir) / store_file.name).samefile(store_file):
+        raise OutputError(f"{out_dir} holds the store this command reads; export to another folder")
+    store = open_store(store_file)
     descriptor = export_store(store, out_dir, fmt)
     click.echo(f"wrote {descriptor} and {len(list(Path(out_dir).glob('*.' + fmt)))} {fmt} table(s) to {out_dir}")
