@@ -92,7 +92,7 @@ A compound file (TOML; CSV takes the same names as columns, pKa lists separated 
               help="Take a tissue's composition from this species where the species itself has none "
                    "(each such Kp is marked); 'closest' tries the same taxon class, rat first.")
 @click.option("--borrow", is_flag=True, help="Shorthand for --borrow-from rat.")
-@click.option("--stage", "life_stage", default="adult", show_default=True, help="Life stage id.")
+@click.option("--life-stage", "life_stage", default="adult", show_default=True, help="Life stage id.")
 @click.option("--out", "out_path", type=click.Path(dir_okay=False), default=None,
               help="Write the csv or json output to this file instead of the terminal.")
 @format_option()

@@ -80,7 +80,7 @@ def summary(pop) -> list[str]:
               help="Output file, .csv or .parquet; the sidecar is written beside it as OUT.json.")
 @click.option("--format", "fmt", type=click.Choice(["csv", "parquet"]), default=None,
               help="Output format (default: from the suffix of --out).")
-@click.option("--stage", "life_stage", default="adult", show_default=True, help="Life stage id.")
+@click.option("--life-stage", "life_stage", default="adult", show_default=True, help="Life stage id.")
 @click.option("--sex", type=click.Choice(["male", "female"]), default=None, help="Use rows of this sex (and mixed).")
 @click.option("--body-mass", default=None, help='Centre body mass with a unit, e.g. "70 kg" (default: the stored typical one).')
 @click.option("--body-mass-cv", type=float, default=None, help="Between-animal CV of body mass (lognormal).")
