@@ -7,6 +7,7 @@ is log10(value) on log10(body mass); the filled value carries its 95 % predictio
 
 from __future__ import annotations
 
+from ..schema.model import STAGE_FALLBACK
 from .parameters import Cell
 
 MIN_SPECIES = 3  # a fit with intervals needs three species of the animal's own class
@@ -38,17 +39,19 @@ def allometric_cell(store, species: str, stage: str, layout, pick, body_mass: fl
     compartment's volume for a flow). Returns the cell, or None and why no fill is given."""
     from .allometry import fit_power_law
 
-    peers = _peer_sets(store, species, stage, layout)
     own_class = _taxon(store, species)
-    points = []
-    for other, ps in peers.items():
-        cell = pick(ps)
-        if cell is None or cell.origin in ("gap", "not_applicable") or ps.body_mass.origin == "gap":
-            continue
-        if cell.value is None or cell.value <= 0 or _taxon(store, other) != own_class:
-            continue
-        points.append((other, ps.body_mass.value, cell.value, cell.sources, cell.verified_share,
-                       cell.value / per(ps) if per and per(ps) else None))
+    for peer_stage in (stage, *STAGE_FALLBACK.get(stage, ())):  # peers of the same stage first
+        points = []
+        for other, ps in _peer_sets(store, species, peer_stage, layout).items():
+            cell = pick(ps)
+            if cell is None or cell.origin in ("gap", "not_applicable") or ps.body_mass.origin == "gap":
+                continue
+            if cell.value is None or cell.value <= 0 or _taxon(store, other) != own_class:
+                continue
+            points.append((other, ps.body_mass.value, cell.value, cell.sources, cell.verified_share,
+                           cell.value / per(ps) if per and per(ps) else None))
+        if len(points) >= MIN_SPECIES:
+            break
     if len(points) < MIN_SPECIES:
         return None, (f"allometric fill refused: {len(points)} {own_class} species have it "
                       f"({', '.join(p[0] for p in points) or 'none'}); a fit needs {MIN_SPECIES} of the same class")
@@ -59,7 +62,8 @@ def allometric_cell(store, species: str, stage: str, layout, pick, body_mass: fl
                       f"×{MAX_INTERVAL_RATIO:g} ({fit.n} {own_class} species)")
     sources = tuple(dict.fromkeys(s for p in points for s in p[3]))
     shares = [p[4] for p in points if p[4] is not None]
-    method = (f"allometric across {fit.n} {own_class} species: {fit.a:.4g}·BW^{fit.b:.3f}, R² {fit.r2:.2f}, "
+    method = (f"allometric across {fit.n} {own_class} species"
+              f"{'' if peer_stage == stage else f' at their {peer_stage} stage'}: {fit.a:.4g}·BW^{fit.b:.3f}, R² {fit.r2:.2f}, "
               f"exponent 95 % CI {fit.b_ci[0]:.2f}–{fit.b_ci[1]:.2f}; interval is the 95 % prediction interval; "
               f"species: {', '.join(fit.labels)}")
     return Cell(value, unit, "allometric", None, None, low, high, sources, method,

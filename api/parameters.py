@@ -433,6 +433,17 @@ def _body_mass_from_other_stage(store, species, life_stage, sex, verified_only) 
     return None
 
 
+def _cardiac_output_from_other_stage(store, species, life_stage, sex, verified_only, bw: float) -> Cell | None:
+    stages = [r[0] for r in store.query("SELECT DISTINCT life_stage_id FROM curated_values WHERE species_id = ?",
+                                        (species,))]
+    for stage in stage_order(life_stage, stages):
+        resolved = Resolver(store, species, stage, sex, verified_only=verified_only).cardiac_output(bw)
+        if resolved.ok:
+            cell = _scaled_cell(resolved, 1.0, "L/h", bw)
+            return replace(cell, origin="fallback", method=f"from {stage} rows (stage fallback): {cell.method}")
+    return None
+
+
 def _studied_range_check(resolver: Resolver, ps: ParameterSet) -> None:
     """A given body mass far outside the subjects behind the set's rows is an extrapolation: say so."""
     masses = [r["subject_body_mass_kg"] for r in resolver.all_rows if r["subject_body_mass_kg"] is not None]
@@ -489,6 +500,8 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
         co = Cell.gap("L/h", "no body mass to scale cardiac output to")
     else:
         co = _scaled_cell(resolver.cardiac_output(bw), 1.0, "L/h", bw)
+    if stage_fallback and co.origin == "gap" and bw is not None:  # the flows below are shares of it
+        co = _cardiac_output_from_other_stage(store, species, life_stage, sex, verified_only, bw) or co
     if fill == "allometric" and co.origin == "gap" and bw is not None:
         from .fill import fill_cardiac_output
 
@@ -509,7 +522,15 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
     ps = ParameterSet(species, life_stage, sex, lay, bw_cell, co, volumes, flows, liver_flow, physiology,
                       fill=fill, units=units)
     if stage_fallback and bw is not None:
-        fall_back(store, ps, lambda stage: parameter_set(store, species, life_stage=stage, body_mass=bw, **options))
+        # the other stage's own rows only: a gap still left is filled across species below, and says so
+        other_stage = lambda stage: parameter_set(store, species, life_stage=stage, body_mass=bw,  # noqa: E731
+                                                  **dict(options, fill="none"))
+        had_co = ps.cardiac_output.origin != "gap"
+        fall_back(store, ps, other_stage)
+        if not had_co and ps.cardiac_output.origin != "gap":  # this stage's flow shares × the borrowed output
+            again, _ = _flow_cells(resolver, lay, ps.cardiac_output, bw)
+            ps.flows.update({c: again[c] for c, cell in ps.flows.items() if cell.origin == "gap"})
+            fall_back(store, ps, other_stage)
     else:
         point_to_other_stages(ps, other_stage_rows(store, species, life_stage, lay))
     if fill == "allometric":

@@ -42,6 +42,9 @@ def render_table(ps, file=None) -> None:
     def how(cell):
         colour = {"gap": "bold red", "allometric": "yellow", "not_applicable": "dim"}.get(cell["origin"], "")
         text = "n/a" if cell["origin"] == "not_applicable" else cell["origin"]
+        share = cell.get("verified_share")
+        if share is not None and share < 0.5 and cell["origin"] != "gap":
+            text += " ~"  # rests mostly on values recalled, not read in their source
         return f"[{colour}]{text}[/]" if colour else text
 
     def val(cell):
@@ -58,7 +61,8 @@ def render_table(ps, file=None) -> None:
                       how(c["blood_flow"]), short(c["volume"]["sources"] + c["blood_flow"]["sources"]))
     console.print(table)
     console.print("± sd of one study, or (se) of a pooled mean; \\[low–high] the range of the study values, "
-                  "or for allometric fills the 95 % prediction interval")
+                  "or for allometric fills the 95 % prediction interval; ~ rests mostly on values recalled, not "
+                  "read in their source (--verified-only leaves them out)")
     for name, label in (("gfr", "GFR"), ("hematocrit", "hematocrit")):
         cell = d["physiology"].get(name)
         if cell:
