@@ -433,11 +433,27 @@ def _body_mass_from_other_stage(store, species, life_stage, sex, verified_only) 
     return None
 
 
-def _cardiac_output_from_other_stage(store, species, life_stage, sex, verified_only, bw: float) -> Cell | None:
+def _class_check(resolver: Resolver, ps: ParameterSet) -> None:
+    """Say when the rows behind a set mix production classes (broilers with layers, dairy with beef)."""
+    classes: dict[str, int] = {}
+    for rows in resolver.groups.values():
+        for r in rows:
+            classes[r["class_id"] or "not stated"] = classes.get(r["class_id"] or "not stated", 0) + 1
+    named = {c: n for c, n in classes.items() if c != "not stated"}
+    if len(named) > 1 or (resolver.animal_class and "not stated" in classes):
+        ps.checks.append({"check": "classes_mixed", "status": "warn", "detail": "rows of " + ", ".join(
+            f"{c} ({n})" for c, n in sorted(classes.items())) + " are combined; choose one with the class option"
+            if not resolver.animal_class else f"class {resolver.animal_class} plus rows that name no class "
+            f"({classes.get('not stated', 0)})"})
+
+
+def _cardiac_output_from_other_stage(store, species, life_stage, sex, verified_only, bw: float,
+                                     animal_class=None) -> Cell | None:
     stages = [r[0] for r in store.query("SELECT DISTINCT life_stage_id FROM curated_values WHERE species_id = ?",
                                         (species,))]
     for stage in stage_order(life_stage, stages):
-        resolved = Resolver(store, species, stage, sex, verified_only=verified_only).cardiac_output(bw)
+        resolved = Resolver(store, species, stage, sex, verified_only=verified_only,
+                            animal_class=animal_class).cardiac_output(bw)
         if resolved.ok:
             cell = _scaled_cell(resolved, 1.0, "L/h", bw)
             return replace(cell, origin="fallback", method=f"from {stage} rows (stage fallback): {cell.method}")
@@ -470,11 +486,12 @@ def _body_mass_option(body_mass, body_weight):
 
 def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | None = None, body_mass=None,
                   layout="whole_body", fill: str = "none", units: str = "SI", stage_fallback: bool = False,
-                  verified_only: bool = False, body_weight=None) -> ParameterSet:
+                  verified_only: bool = False, animal_class: str | None = None, body_weight=None) -> ParameterSet:
     """A layout's volumes and flows at one body mass (the species' typical one if not given), every gap
     marked. ``fill="allometric"`` fills gaps across species; ``stage_fallback`` fills them from the
     species' rows at other life stages (named on each value); ``verified_only`` uses only rows read in
-    their source text; ``units`` is "SI" or "clinical"."""
+    their source text; ``animal_class`` (vocab/classes.csv: broiler, dairy, minipig …) keeps rows of that
+    class and rows that name none; ``units`` is "SI" or "clinical"."""
     body_mass = _body_mass_option(body_mass, body_weight)
     if fill not in ("none", "allometric"):
         raise ParameterSetError(f"fill must be 'none' or 'allometric', not {fill!r}")
@@ -485,9 +502,15 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
     store.require("species", species, "species")
     store.require("life_stages", life_stage, "life stage")
     lay = layout if isinstance(layout, Layout) else load_layout(layout, set(store.ids("compartments")))
-    resolver = Resolver(store, species, life_stage, sex, verified_only=verified_only)
+    if animal_class is not None and not store.query("SELECT 1 FROM classes WHERE species = ? AND id = ?",
+                                                     (species, animal_class)):
+        known = [r[0] for r in store.query("SELECT id FROM classes WHERE species = ? ORDER BY id", (species,))]
+        raise ParameterSetError(f"{species} has no class {animal_class!r}; "
+                                f"{'its classes: ' + ', '.join(known) if known else 'none is curated'}")
+    resolver = Resolver(store, species, life_stage, sex, verified_only=verified_only, animal_class=animal_class)
     bw_cell, bw = _body_mass(resolver, body_mass)
-    options = dict(sex=sex, layout=lay, fill=fill, units=units, verified_only=verified_only)
+    options = dict(sex=sex, layout=lay, fill=fill, units=units, verified_only=verified_only,
+                   animal_class=animal_class)
     if bw is None and stage_fallback:
         borrowed = _body_mass_from_other_stage(store, species, life_stage, sex, verified_only)
         if borrowed is not None:
@@ -501,7 +524,7 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
     else:
         co = _scaled_cell(resolver.cardiac_output(bw), 1.0, "L/h", bw)
     if stage_fallback and co.origin == "gap" and bw is not None:  # the flows below are shares of it
-        co = _cardiac_output_from_other_stage(store, species, life_stage, sex, verified_only, bw) or co
+        co = _cardiac_output_from_other_stage(store, species, life_stage, sex, verified_only, bw, animal_class) or co
     if fill == "allometric" and co.origin == "gap" and bw is not None:
         from .fill import fill_cardiac_output
 
@@ -539,6 +562,7 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
         fill_allometric(store, ps)
     _close_balances(ps)
     _source_sum_checks(resolver, ps)
+    _class_check(resolver, ps)
     if bw_cell.origin == "given":
         _studied_range_check(resolver, ps)
     for comp, cell in ps.volumes.items():

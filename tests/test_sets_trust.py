@@ -129,3 +129,17 @@ def test_circulation_is_data_and_returns_the_cardiac_output(store, species, layo
         sum(flows[c] for c in to_liver)
     assert venous_return == pytest.approx(data["cardiac_output"]["value"], rel=1e-9)
     assert all(math.isfinite(flows[c]) for c in systemic)
+
+
+def test_production_class_is_an_option_and_mixing_is_said(store):
+    mixed = store.parameter_set("chicken", life_stage="juvenile", body_mass="2.5 kg")
+    check = next(c for c in mixed.checks if c["check"] == "classes_mixed")
+    assert "broiler" in check["detail"] and "layer" in check["detail"]
+    broilers = store.parameter_set("chicken", life_stage="juvenile", body_mass="2.5 kg", animal_class="broiler")
+    resolver_rows = [r for c, p, cell in broilers.cells() for r in cell.sources]
+    assert resolver_rows  # something is known of broilers
+    assert "layer" not in next(c for c in broilers.checks if c["check"] == "classes_mixed")["detail"]
+    from bodyplan.api.parameters import ParameterSetError
+
+    with pytest.raises(ParameterSetError, match="its classes: broiler, layer"):
+        store.parameter_set("chicken", animal_class="pekin")

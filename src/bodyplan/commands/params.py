@@ -102,12 +102,14 @@ OUT_SUFFIXES = {"json": (".json",), "csv": (".csv",), "sbml": (".xml", ".sbml"),
 @click.option("--stage-fallback", is_flag=True,
               help="Fill gaps from this species' rows at other life stages (named on each value).")
 @click.option("--verified-only", is_flag=True, help="Use only rows read in their source text.")
+@click.option("--class", "animal_class", default=None,
+              help="Production class or breed (vocab/classes.csv: broiler, layer, dairy, minipig …).")
 @click.option("--allow-gaps", is_flag=True, help="SBML: export a set with gaps, each marked and set to NaN.")
 @click.option("--out", type=click.Path(dir_okay=False), default=None, help="Write to a file instead of stdout.")
 @force_option
 @store_option
 def params_cmd(species, life_stage, sex, body_weight, layout, fill, units, fmt, stage_fallback, verified_only,
-               allow_gaps, out, force, store_path):
+               animal_class, allow_gaps, out, force, store_path):
     """A model-ready parameter set for SPECIES, scaled to a body mass, every gap marked."""
     from pathlib import Path
 
@@ -125,7 +127,8 @@ def params_cmd(species, life_stage, sex, body_weight, layout, fill, units, fmt, 
     species = choose_ids(store, "species", species, "species")
     life_stage = choose_ids(store, "life_stages", life_stage, "life stage", "--life-stage")
     ps = store.parameter_set(species, life_stage=life_stage, sex=sex, body_mass=body_weight, layout=layout,
-                             fill=fill, units=units, stage_fallback=stage_fallback, verified_only=verified_only)
+                             fill=fill, units=units, stage_fallback=stage_fallback, verified_only=verified_only,
+                             animal_class=animal_class)
     text = {"json": lambda: to_json(ps.to_dict()), "csv": ps.to_csv,
             "sbml": lambda: ps.to_sbml(allow_gaps=allow_gaps)}.get(fmt)
     if out:
