@@ -243,15 +243,27 @@ def _body_mass(resolver: Resolver, body_mass) -> tuple[Cell, float | None]:
         return Cell(est.value, "kg", origin, est.sd, est.se, est.low, est.high, est.sources,
                     f"typical body mass: {est.method}", depends_on=("body_mass",),
                     verified_share=bw.verified_share), est.value
-    from ..units import UnitError, to_quantity
-
-    try:
-        kg = float(to_quantity(body_mass, "kg").to("kg").magnitude)
-    except (UnitError, Exception) as exc:
-        raise ParameterSetError(f"body mass {body_mass!r} is not a mass: {exc}") from None
+    kg = _kilograms(body_mass)
     if not kg > 0 or not math.isfinite(kg):
         raise ParameterSetError(f"body mass must be positive, got {body_mass!r}")
     return Cell(kg, "kg", "given", method="given by the user"), kg
+
+
+def _kilograms(body_mass) -> float:
+    """A body mass in kg: a number is kg; text passes the strict grammar, and only a unit other than kg
+    (the canonical unit, so nothing to convert) goes through the registry."""
+    from ..units import UnitError, parse_quantity_text, to_quantity
+
+    if isinstance(body_mass, (int, float)) and not isinstance(body_mass, bool):
+        return float(body_mass)
+    try:
+        if isinstance(body_mass, str):
+            text = parse_quantity_text(body_mass)
+            if text.unit.strip() == "kg" and text.uncertainty is None:
+                return float(text.number)
+        return float(to_quantity(body_mass, "kg").to("kg").magnitude)
+    except (UnitError, Exception) as exc:
+        raise ParameterSetError(f"body mass {body_mass!r} is not a mass: {exc}") from None
 
 
 def _volume_cells(resolver: Resolver, layout: Layout, bw: float | None) -> dict[str, Cell]:

@@ -350,7 +350,7 @@ class Resolver:
     def _surface_per_kg(self, row: dict) -> tuple[float | None, str]:
         """m² of body surface per kg of the row's subjects (vocab/body_surface.csv, the species' preferred
         formula; a formula that needs a height takes the species' reference height)."""
-        from ..ingest.body_surface import NEEDS_HEIGHT, BodySurfaceError, body_surface_area
+        from ..units.body_surface import AREA_M2, NEEDS_HEIGHT
 
         mass = self.subject_mass(row)
         mine = [f for f in self._surface_formulas if f["species"] == self.species]
@@ -358,11 +358,9 @@ class Resolver:
             return None, ""
         formula = next((f for f in mine if f["preferred"] == "yes"), mine[0])
         height = REFERENCE_HEIGHT_CM.get(self.species) if formula["formula"] in NEEDS_HEIGHT else None
-        try:
-            area = body_surface_area(self._surface_formulas, self.species, f"{mass} kg",
-                                     None if height is None else f"{height} cm").to("m**2").magnitude
-        except BodySurfaceError:
+        if formula["formula"] in NEEDS_HEIGHT and height is None or (formula["formula"] == "meeh" and not formula["k"]):
             return None, ""
+        area = AREA_M2[formula["formula"]](mass, height, formula["k"])
         at = f" at the reference height {height:g} cm" if height else ""
         return area / mass, f"per m² over the subjects' body surface ({formula['source']}{at})"
 

@@ -8,7 +8,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from bodyplan.api.locate import bundled_data_dir
-from bodyplan.ingest.body_surface import BodySurfaceError, body_surface_area, du_bois, meeh, mosteller
+from bodyplan.units.body_surface import BodySurfaceError, body_surface_area, du_bois, meeh, mosteller
 
 
 def m2(q) -> float:

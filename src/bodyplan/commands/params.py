@@ -120,9 +120,9 @@ def params_cmd(species, life_stage, sex, body_weight, layout, fill, units, fmt, 
         layout_file = [Path(layout)] if Path(layout).suffix == ".toml" else []
         guard_out(out, kind="text", suffixes=OUT_SUFFIXES[fmt], inputs=[store_file, *layout_file], force=force)
     if body_weight is not None:
-        from ..units import to_quantity
+        from ..units import parse_quantity_text
 
-        to_quantity(body_weight)  # the strict grammar names a malformed body mass before anything runs
+        parse_quantity_text(body_weight)  # the strict grammar names a malformed body mass before anything runs
     store = open_store(store_file)
     species = choose_ids(store, "species", species, "species")
     life_stage = choose_ids(store, "life_stages", life_stage, "life stage", "--life-stage")

@@ -13,7 +13,7 @@ from __future__ import annotations
 import math
 
 from ..errors import BodyplanError
-from ..units import Quantity, UnitError, to_quantity
+from . import UnitError, to_quantity
 
 FORMULAS = ("du_bois", "mosteller", "meeh")
 NEEDS_HEIGHT = {"du_bois", "mosteller"}
@@ -40,22 +40,35 @@ def _cm(height) -> float:
     return h
 
 
-def du_bois(weight, height) -> Quantity:
-    return Quantity(0.007184 * _kg(weight) ** 0.425 * _cm(height) ** 0.725, "m^2")
+# m² from kg and cm as plain floats: parameter sets convert per-m² rows without building the registry
+AREA_M2 = {
+    "du_bois": lambda kg, cm, k: 0.007184 * kg ** 0.425 * cm ** 0.725,
+    "mosteller": lambda kg, cm, k: math.sqrt(cm * kg / 3600),
+    "meeh": lambda kg, cm, k: k * (kg * 1000) ** (2 / 3) / 1e4,  # k · W[g]^(2/3) in cm²
+}
 
 
-def mosteller(weight, height) -> Quantity:
-    return Quantity(math.sqrt(_cm(height) * _kg(weight) / 3600), "m^2")
+def _m2(value: float):
+    from . import Quantity
+
+    return Quantity(value, "m^2")
 
 
-def meeh(weight, k: float) -> Quantity:
+def du_bois(weight, height):
+    return _m2(AREA_M2["du_bois"](_kg(weight), _cm(height), None))
+
+
+def mosteller(weight, height):
+    return _m2(AREA_M2["mosteller"](_kg(weight), _cm(height), None))
+
+
+def meeh(weight, k: float):
     if not (k > 0 and math.isfinite(k)):
         raise BodySurfaceError(f"Meeh's k must be a positive number, not {k!r}")
-    grams = _kg(weight) * 1000
-    return Quantity(k * grams ** (2 / 3), "cm^2").to("m^2")
+    return _m2(AREA_M2["meeh"](_kg(weight), None, k))
 
 
-def body_surface_area(formulas, species: str, weight, height=None, formula: str | None = None) -> Quantity:
+def body_surface_area(formulas, species: str, weight, height=None, formula: str | None = None):
     """BSA of one animal of ``species`` from the curated formulas (rows of vocab/body_surface.csv as
     dicts, or a DataFrame of it); ``formula`` picks one, else the species' preferred formula."""
     rows = formulas.to_dict("records") if hasattr(formulas, "to_dict") else list(formulas)
