@@ -36,6 +36,14 @@ def bundled_store(tmp_path_factory) -> Path:
     return out
 
 
+@pytest.fixture(scope="session")
+def real_store(bundled_store):
+    """The bundled store, open (read-only use)."""
+    import bodyplan
+
+    return bodyplan.open_store(bundled_store)
+
+
 @pytest.fixture
 def scenario_tree(tmp_path):
     """A function: scenario folder under tests/data/ (e.g. 'bad/duplicate_id') → good tree with it laid over."""

@@ -8,7 +8,6 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-import bodyplan
 from bodyplan.api.allometry import AllometryError, allometry, fit_power_law
 
 # Points invented for tests: body masses (kg) and values with scatter around a power law.
@@ -188,11 +187,6 @@ def _fit_or_skip(store, quantity, compartment=None):
                     f"mammal species ({', '.join(result.points['species'])}); needs {MIN_SPECIES}. "
                     f"Rows left out for: {', '.join(left_out) or 'none'}")
     return result
-
-
-@pytest.fixture(scope="module")
-def real_store(bundled_store):
-    return bodyplan.open_store(bundled_store)
 
 
 # Cardiac output. Stahl 1967 (J Appl Physiol 22:453) fitted cardiac output itself: exponent 0.81

@@ -18,7 +18,7 @@ import pytest
 
 import bodyplan
 from bodyplan.api.gaps import STATES, gap_report, needed_for
-from bodyplan.api.layouts import Layout, load_layout
+from bodyplan.api.layouts import load_layout
 from bodyplan.api.locate import bundled_data_dir
 from bodyplan.ingest import build
 from bodyplan.schema.model import slots

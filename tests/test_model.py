@@ -15,7 +15,6 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-import bodyplan
 from bodyplan.api.gaps import gap_report
 from bodyplan.api.layouts import load_layout
 from bodyplan.api.parameters import resolve_parameter
@@ -27,8 +26,8 @@ LAYOUTS = ("whole_body", "rich_slow")
 
 
 @pytest.fixture(scope="module")
-def store(bundled_store):
-    return bodyplan.open_store(bundled_store)
+def store(real_store):
+    return real_store
 
 
 @pytest.fixture(scope="module")

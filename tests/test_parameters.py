@@ -15,7 +15,6 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-import bodyplan
 from bodyplan.api.layouts import LayoutError, load_layout
 from bodyplan.api.parameters import ParameterSetError
 from bodyplan.api.pooling import pool
@@ -26,11 +25,6 @@ TOY = Path(__file__).parent / "data" / "params_toy"
 @pytest.fixture(scope="module")
 def toy_store(store_from_tree):
     return store_from_tree(TOY)
-
-
-@pytest.fixture(scope="module")
-def real_store(bundled_store):
-    return bodyplan.open_store(bundled_store)
 
 
 def cell(ps, compartment, parameter):

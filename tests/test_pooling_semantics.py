@@ -11,15 +11,14 @@ from __future__ import annotations
 
 import pytest
 
-import bodyplan
 from bodyplan.api.parameters import resolve_parameter
 from bodyplan.api.resolve import Resolver
 from bodyplan.api.trace import trace
 
 
 @pytest.fixture(scope="module")
-def store(bundled_store):
-    return bodyplan.open_store(bundled_store)
+def store(real_store):
+    return real_store
 
 
 @pytest.fixture(scope="module")

@@ -44,11 +44,6 @@ def toy_store(store_from_tree):
 
 
 @pytest.fixture(scope="module")
-def real_store(bundled_store):
-    return bodyplan.open_store(bundled_store)
-
-
-@pytest.fixture(scope="module")
 def toy_population(toy_store):
     return toy_store.population("mouse", N, 11, workers=1)
 

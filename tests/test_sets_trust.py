@@ -10,15 +10,14 @@ import math
 import pandas as pd
 import pytest
 
-import bodyplan
 from bodyplan.api.parameters import resolve_parameter
 from bodyplan.api.trace import trace
 from bodyplan.schema.model import PORTAL_ORGANS
 
 
 @pytest.fixture(scope="module")
-def store(bundled_store):
-    return bodyplan.open_store(bundled_store)
+def store(real_store):
+    return real_store
 
 
 def test_absolute_flows_are_shares_of_their_own_source_cardiac_output(store):

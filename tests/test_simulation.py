@@ -25,7 +25,6 @@ import numpy as np
 import pytest
 import roadrunner  # the test extra installs it (libroadrunner); a missing simulator is an error, not a skip
 
-import bodyplan
 from bodyplan.api.parameters import ParameterSetError
 from bodyplan.api.sbml import NS, SBML_UNITS
 from bodyplan.units import ureg
@@ -51,11 +50,6 @@ MASS_BALANCE = 1e-9  # of the amount infused
 VENOUS_RETURN = 1e-3
 STEADY_STATE = 1e-2
 AGREEMENT = 1e-6  # SBML run against the numpy model, relative to the amount infused
-
-
-@pytest.fixture(scope="module")
-def real_store(bundled_store):
-    return bodyplan.open_store(bundled_store)
 
 
 @pytest.fixture(scope="module")
