@@ -382,12 +382,13 @@ def attach_conversion(frame: pd.DataFrame, tree: CuratedTree, findings: Findings
         canonical[index] = form.canonical_unit
         normalisation[index] = form.normalisation
         kind[index] = info["kind"]
-    return frame.assign(
-        _factor=factor, _unit_canonical=canonical, _normalisation=normalisation, _kind=kind,
-        _value_canonical=frame["_value"].to_numpy() * factor,
-        _low_canonical=frame["_low"].to_numpy() * factor,
-        _high_canonical=frame["_high"].to_numpy() * factor,
-    )
+    with np.errstate(over="ignore"):  # a number that overflows in the canonical unit is reported (V226)
+        return frame.assign(
+            _factor=factor, _unit_canonical=canonical, _normalisation=normalisation, _kind=kind,
+            _value_canonical=frame["_value"].to_numpy() * factor,
+            _low_canonical=frame["_low"].to_numpy() * factor,
+            _high_canonical=frame["_high"].to_numpy() * factor,
+        )
 
 
 def _measure(frame, column, dimension, unit, findings, skip, what, code="") -> np.ndarray:
