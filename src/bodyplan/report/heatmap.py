@@ -95,8 +95,8 @@ def heatmap_figure(report: GapReport):
     fig.text(0.012, 0.08 / height,
              "Cell text: number of sources; v verified against the source text; ± uncertainty given; "
              "f fraction or per-kg form only;\n* a lumped compartment with a part lacking data (the cell shows "
-             "its worst part). Rows on sub-compartments (stomach for gut)\nare not counted here; readiness "
-             "(share of the parameter set that is not a gap) does use them.",
+             "its worst part). Rows on parts a set may sum (stomach for gut)\nare counted with their whole; readiness "
+             "is the share of the parameter set that is not a gap.",
              ha="left", va="bottom", fontsize=9, linespacing=1.4)
     fig.tight_layout(rect=(0, footer / height, 1, 1 - 0.35 / height))
     return fig

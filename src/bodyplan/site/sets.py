@@ -108,7 +108,7 @@ class SiteData:
 
     # ---- parameter sets ----------------------------------------------------------------------------
     def parameter_set(self, species: str, stage: str, layout: str) -> dict:
-        """A parameter set at the species' typical body weight, with the rows behind each number."""
+        """A parameter set at the species' typical body mass, with the rows behind each number."""
         ps = self.store.parameter_set(species, life_stage=stage, layout=layout)
         d = ps.to_dict()
         body = d.get("body_mass") or d.get("body_weight")
