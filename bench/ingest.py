@@ -5,7 +5,7 @@ invented for the benchmark), builds it with bodyplan.ingest.build, then times th
 same values CSVs with pandas and insert the raw rows with sqlite3.executemany. Prints values per second
 for both and the ratio build time / baseline time (target: at most 3).
 
-    python -P bench/ingest.py [--values 200000] [--files 50] [--repeat 3] [--profile] [--out bench/results/ingest.json]
+    python bench/ingest.py [--values 200000] [--files 50] [--repeat 3] [--profile] [--out bench/results/ingest.json]
 """
 
 from __future__ import annotations
