@@ -146,6 +146,20 @@ class ParameterSet:
     checks: list[dict] = field(default_factory=list)
     fill: str = "none"  # how gaps were filled: none, or allometric on request
     units: str = "SI"
+    partition: list[dict] = field(default_factory=list)  # Kp per compound and model compartment, when asked
+
+    def add_partition_coefficients(self, store, compounds, *, method: str = "rodgers_rowland",
+                                   borrow_from=None) -> "ParameterSet":
+        """Tissue:plasma and tissue:blood Kp of every model compartment for each compound (volume-weighted
+        over a lumped compartment's parts; see api/partition.py), carried into the JSON and the SBML."""
+        from .partition import model_partition_coefficients, partition_coefficients
+
+        kp = partition_coefficients(store, self.species, compounds, method=method, life_stage=self.life_stage,
+                                    borrow_from=borrow_from)
+        frame = model_partition_coefficients(kp, self, store)
+        self.partition = [{k: (None if isinstance(v, float) and math.isnan(v) else v) for k, v in row.items()}
+                          for row in frame.to_dict("records")]
+        return self
 
     # ---- views -------------------------------------------------------------------------------
     @property
@@ -207,6 +221,7 @@ class ParameterSet:
             ],
             "gaps": self.gaps,
             "checks": self.checks,
+            **({"partition_coefficients": self.partition} if self.partition else {}),
             "caution": CAUTION,
         }
 

@@ -15,6 +15,7 @@
 from __future__ import annotations
 
 import math
+import re
 import xml.etree.ElementTree as ET
 from html import escape
 
@@ -188,4 +189,31 @@ def parameter_set_to_sbml(ps, allow_gaps: bool = False) -> str:
         _annotate(c, element)
         if entry:
             parameter(FLOW_PREFIX + comp, ps._unit_cell("blood_flow", ps.flows[comp]), "blood_flow", comp)
+    _partition_parameters(model, ps, allow_gaps)
     return libsbml.writeSBMLToString(doc)
+
+
+def _partition_parameters(model, ps, allow_gaps: bool) -> None:
+    """One dimensionless parameter kp_<compound>_<compartment> (tissue:blood, as a flow-limited model uses
+    it) per Kp the set carries, annotated with the tissue:plasma value, method, status and sources."""
+    missing = [f"{r['compound']}.{r['compartment']}" for r in ps.partition if r.get("kp_blood") is None]
+    if missing and not allow_gaps:
+        from .parameters import ParameterSetError
+
+        raise ParameterSetError(f"no Kp for {', '.join(missing)} (tissue composition missing: borrow it from "
+                                "another species, or export the gaps marked with allow_gaps=True)")
+    for row in ps.partition:
+        pid = f"kp_{re.sub(r'[^A-Za-z0-9_]', '_', row['compound'])}_{row['compartment']}"
+        p = model.createParameter()
+        _check(p.setId(pid), pid)
+        p.setConstant(True)
+        _check(p.setUnits("dimensionless"), f"{pid} units")
+        p.setValue(float("nan") if row.get("kp_blood") is None else float(row["kp_blood"]))
+        attrs = {"quantity": "partition_coefficient", "form": "tissue:blood", "compound": row["compound"],
+                 "compartment": row["compartment"], "status": str(row.get("status", ""))}
+        if row.get("kp") is not None:
+            attrs["tissue_plasma"] = _number(row["kp"])
+        for key in ("sources", "reason", "borrowed_from"):
+            if row.get(key):
+                attrs[key] = " ".join(row[key]) if isinstance(row[key], (list, tuple)) else str(row[key])
+        _annotate(p, ET.Element(_q("value"), attrs))

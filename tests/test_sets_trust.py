@@ -142,3 +142,28 @@ def test_production_class_is_an_option_and_mixing_is_said(store):
 
     with pytest.raises(ParameterSetError, match="its classes: broiler, layer"):
         store.parameter_set("chicken", animal_class="pekin")
+
+
+def test_partition_coefficients_travel_with_the_set(store, tmp_path):
+    """Kp of every model compartment (volume-weighted over lumped parts) in the JSON and the SBML; a
+    compound here is invented for tests."""
+    import libsbml
+
+    compound = {"name": "neutral_x", "log_p": 2.0, "fu_plasma": 0.5, "blood_plasma_ratio": 1.0}
+    ps = store.parameter_set("rat", body_mass="0.25 kg", layout="rich_slow")
+    ps.add_partition_coefficients(store, compound, borrow_from="human")
+    data = json.loads(ps.to_json())
+    rows = {r["compartment"]: r for r in data["partition_coefficients"]}
+    assert set(rows) == set(ps.layout.compartments)
+    liver = rows["liver"]
+    assert liver["kp"] > 0 and liver["kp_blood"] == pytest.approx(liver["kp"] / 1.0)
+    assert "human" in str(liver["borrowed_from"])
+    sbml = ps.to_sbml(allow_gaps=True)
+    model = libsbml.readSBMLFromString(sbml).getModel()
+    kp = model.getParameter("kp_neutral_x_liver")
+    assert kp is not None and kp.getValue() == pytest.approx(liver["kp_blood"])
+    if any(r["kp_blood"] is None for r in rows.values()):
+        from bodyplan.api.parameters import ParameterSetError
+
+        with pytest.raises(ParameterSetError, match="gap|no Kp for"):  # set gaps or Kp gaps: refused either way
+            ps.to_sbml()

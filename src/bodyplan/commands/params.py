@@ -105,11 +105,17 @@ OUT_SUFFIXES = {"json": (".json",), "csv": (".csv",), "sbml": (".xml", ".sbml"),
 @click.option("--class", "animal_class", default=None,
               help="Production class or breed (vocab/classes.csv: broiler, layer, dairy, minipig …).")
 @click.option("--allow-gaps", is_flag=True, help="SBML: export a set with gaps, each marked and set to NaN.")
+@click.option("--compound", "compound_file", type=click.Path(dir_okay=False, exists=True), default=None,
+              help="A compound file (TOML or CSV, as for bodyplan kp): add Kp of every compartment to the set.")
+@click.option("--kp-method", type=click.Choice(["rodgers-rowland", "poulin-theil", "berezhkovskiy"]),
+              default="rodgers-rowland", show_default=True, help="How Kp are computed from tissue composition.")
+@click.option("--kp-borrow-from", default=None, metavar="SPECIES|closest",
+              help="Borrow missing tissue composition from this species (marked on each Kp).")
 @click.option("--out", type=click.Path(dir_okay=False), default=None, help="Write to a file instead of stdout.")
 @force_option
 @store_option
 def params_cmd(species, life_stage, sex, body_weight, layout, fill, units, fmt, stage_fallback, verified_only,
-               animal_class, allow_gaps, out, force, store_path):
+               animal_class, allow_gaps, compound_file, kp_method, kp_borrow_from, out, force, store_path):
     """A model-ready parameter set for SPECIES, scaled to a body mass, every gap marked."""
     from pathlib import Path
 
@@ -129,6 +135,9 @@ def params_cmd(species, life_stage, sex, body_weight, layout, fill, units, fmt, 
     ps = store.parameter_set(species, life_stage=life_stage, sex=sex, body_mass=body_weight, layout=layout,
                              fill=fill, units=units, stage_fallback=stage_fallback, verified_only=verified_only,
                              animal_class=animal_class)
+    if compound_file:
+        ps.add_partition_coefficients(store, compound_file, method=kp_method.replace("-", "_"),
+                                      borrow_from=kp_borrow_from)
     text = {"json": lambda: to_json(ps.to_dict()), "csv": ps.to_csv,
             "sbml": lambda: ps.to_sbml(allow_gaps=allow_gaps)}.get(fmt)
     if out:
