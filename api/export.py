@@ -71,7 +71,7 @@ def table_schema(store, table: str) -> dict:
     return schema
 
 
-def _cell(value, kind: str):
+def _typed_cell(value, kind: str):
     if value is None or (isinstance(value, float) and math.isnan(value)):
         return None
     if kind == "boolean":
@@ -86,7 +86,7 @@ def _rows(store, table: str, schema: dict) -> list[list]:
     kinds = [f["type"] for f in schema["fields"]]
     cols = ", ".join(f'"{n}"' for n in names)
     order = ", ".join(f'"{n}"' for n in schema["primaryKey"])
-    return [[_cell(v, k) for v, k in zip(row, kinds)]
+    return [[_typed_cell(v, k) for v, k in zip(row, kinds)]
             for row in store.query(f'SELECT {cols} FROM "{table}" ORDER BY {order}')]
 
 

@@ -33,10 +33,12 @@ def _taxon(store, species: str) -> str:
 
 
 def allometric_cell(store, species: str, stage: str, layout, pick, body_mass: float, unit: str,
-                    per=None) -> tuple[Cell | None, str]:
+                    per=None, own: float | None = None, what: str = "") -> tuple[Cell | None, str]:
     """Fill one gap from species of the same class; ``pick(parameter_set) -> Cell`` selects the parameter.
-    ``per(parameter_set) -> float`` gives the quantity a plausible value is judged per (body mass, or the
-    compartment's volume for a flow). Returns the cell, or None and why no fill is given."""
+    ``per(parameter_set)`` is what a value is judged per (a set's body mass, or its volume of the
+    compartment for a flow) and ``own`` the same for the set being filled: a fill whose relative value
+    lies outside the fitted species' range widened ×PLAUSIBLE_MARGIN is refused. Returns the cell, or
+    None and why no fill is given."""
     from .allometry import fit_power_law
 
     own_class = _taxon(store, species)
@@ -60,38 +62,29 @@ def allometric_cell(store, species: str, stage: str, layout, pick, body_mass: fl
     if high / low > MAX_INTERVAL_RATIO:
         return None, (f"allometric fill refused: its 95 % prediction interval {low:.3g}–{high:.3g} spans more than "
                       f"×{MAX_INTERVAL_RATIO:g} ({fit.n} {own_class} species)")
+    relative = [p[5] for p in points if p[5] is not None]
+    if own and relative:
+        lo, hi = min(relative) / PLAUSIBLE_MARGIN, max(relative) * PLAUSIBLE_MARGIN
+        if not lo <= value / own <= hi:
+            return None, (f"allometric fill refused: {value / own:.3g} {what} lies outside {lo:.3g}–{hi:.3g}, "
+                          f"the range of the fitted species widened ×{PLAUSIBLE_MARGIN:g}")
     sources = tuple(dict.fromkeys(s for p in points for s in p[3]))
     shares = [p[4] for p in points if p[4] is not None]
     method = (f"allometric across {fit.n} {own_class} species"
-              f"{'' if peer_stage == stage else f' at their {peer_stage} stage'}: {fit.a:.4g}·BW^{fit.b:.3f}, R² {fit.r2:.2f}, "
-              f"exponent 95 % CI {fit.b_ci[0]:.2f}–{fit.b_ci[1]:.2f}; interval is the 95 % prediction interval; "
-              f"species: {', '.join(fit.labels)}")
+              f"{'' if peer_stage == stage else f' at their {peer_stage} stage'}: {fit.a:.4g}·BW^{fit.b:.3f}, "
+              f"R² {fit.r2:.2f}, exponent 95 % CI {fit.b_ci[0]:.2f}–{fit.b_ci[1]:.2f}; interval is the 95 % "
+              f"prediction interval; species: {', '.join(fit.labels)}")
     return Cell(value, unit, "allometric", None, None, low, high, sources, method,
-                verified_share=sum(shares) / len(shares) if shares else None), \
-        _plausibility([p[5] for p in points if p[5] is not None])
+                verified_share=sum(shares) / len(shares) if shares else None), ""
 
 
-def _plausibility(relative: list[float]):
-    """The peers' range of a fill's relative value (per kg body mass, or per L of tissue), widened."""
-    if not relative:
-        return None
-    return min(relative) / PLAUSIBLE_MARGIN, max(relative) * PLAUSIBLE_MARGIN
+def _body_mass_of(ps) -> float:
+    return ps.body_mass.value
 
 
 def fill_cardiac_output(store, ps_species: str, stage: str, layout, body_mass: float) -> Cell | None:
-    cell, bounds = allometric_cell(store, ps_species, stage, layout, lambda ps: ps.cardiac_output, body_mass, "L/h",
-                                   per=lambda ps: ps.body_mass.value)
-    return _judged(cell, bounds, cell.value / body_mass if cell is not None else None, "per kg body mass")[0]
-
-
-def _judged(cell, bounds, relative, what: str) -> tuple[Cell | None, str]:
-    """Refuse a fill whose relative value falls outside the peers' widened range."""
-    if cell is None:
-        return None, bounds
-    if bounds is not None and relative is not None and not bounds[0] <= relative <= bounds[1]:
-        return None, (f"allometric fill refused: {relative:.3g} {what} lies outside {bounds[0]:.3g}–{bounds[1]:.3g}, "
-                      f"the range of the fitted species widened ×{PLAUSIBLE_MARGIN:g}")
-    return cell, ""
+    return allometric_cell(store, ps_species, stage, layout, lambda ps: ps.cardiac_output, body_mass, "L/h",
+                           per=_body_mass_of, own=body_mass, what="per kg body mass")[0]
 
 
 def fill_allometric(store, ps) -> None:
@@ -103,19 +96,23 @@ def fill_allometric(store, ps) -> None:
     if ps.body_mass.origin == "gap":
         return
     bw = ps.body_mass.value
-    per_kg = lambda other: other.body_mass.value  # noqa: E731
-    targets = [(ps.physiology, "gfr", lambda other: other.physiology.get("gfr"), per_kg, "per kg body mass")]
+
+    def volume_of(other, comp):  # a flow is judged per L of its compartment (perfusion)
+        return other.volumes[comp].value if other.volumes[comp].origin != "gap" else None
+
+    targets = [(ps.physiology, "gfr", lambda other: other.physiology.get("gfr"), _body_mass_of, bw,
+                "per kg body mass")]
     for comp in ps.layout.compartments:
-        per_litre = lambda other, c=comp: other.volumes[c].value if other.volumes[c].origin != "gap" else None  # noqa: E731
-        targets.append((ps.volumes, comp, lambda other, c=comp: other.volumes.get(c), per_kg, "per kg body mass"))
-        targets.append((ps.flows, comp, lambda other, c=comp: other.flows.get(c), per_litre, "per L of tissue"))
-    for cells, key, pick, per, what in targets:
+        targets.append((ps.volumes, comp, lambda other, c=comp: other.volumes.get(c), _body_mass_of, bw,
+                        "per kg body mass"))
+        targets.append((ps.flows, comp, lambda other, c=comp: other.flows.get(c),
+                        lambda other, c=comp: volume_of(other, c), lambda c=comp: volume_of(ps, c),
+                        "per L of tissue"))  # its own volume as filled just before
+    for cells, key, pick, per, own, what in targets:
         gap = cells.get(key)
         if gap is None or gap.origin != "gap":
             continue
-        cell, bounds = allometric_cell(store, ps.species, ps.life_stage, ps.layout, pick, bw, gap.unit, per=per)
-        own = bw if per is per_kg else (ps.volumes[key].value if cells is ps.flows and
-                                        ps.volumes[key].origin != "gap" else None)
-        cell, why = _judged(cell, bounds, cell.value / own if cell is not None and own else None, what)
+        cell, why = allometric_cell(store, ps.species, ps.life_stage, ps.layout, pick, bw, gap.unit,
+                                    per=per, own=own() if callable(own) else own, what=what)
         cells[key] = cell.resting_on(*gap.depends_on) if cell is not None else \
             replace(gap, reason=f"{gap.reason}; {why}")

@@ -17,7 +17,7 @@ from ..schema.model import (LIVER, PARAMETERS, PORTAL_ORGANS, SHARES_OF_A_WHOLE,
 from .fallback import fall_back, other_stage_rows, point_to_other_stages, stage_order
 from .layouts import REST, Layout, load_layout
 from .pooling import Estimate
-from .resolve import SAME_BODY_WEIGHT, Resolved, Resolver
+from .resolve import SAME_BODY_WEIGHT, SAME_SUBJECTS, Resolved, Resolver
 
 STUDIED_RANGE_MARGIN = 1.5  # a given body mass this far beyond the studied subjects is flagged
 FLOW_TOLERANCE = 0.05  # named systemic flows may exceed cardiac output by 5 % before the set is flagged
@@ -439,7 +439,7 @@ def _source_sum_checks(resolver: Resolver, ps: ParameterSet) -> None:
         groups: dict[tuple, dict[str, float]] = {}
         for r in resolver.all_rows:
             if r["quantity_id"] == quantity and r["compartment_id"] in comps:
-                key = (r["source_id"], r["sex"], r["strain"], r["age"])
+                key = tuple(r[k] for k in SAME_SUBJECTS)
                 groups.setdefault(key, {})[r["compartment_id"]] = r["value_canonical"]
         for (source, *_), by_comp in groups.items():
             if parameter_of(quantity) == "blood_flow" and LIVER in by_comp:  # total hepatic flow carries the portal organs
@@ -462,16 +462,20 @@ def _body_mass_from_other_stage(store, species, life_stage, sex, verified_only) 
 
 def _class_check(resolver: Resolver, ps: ParameterSet) -> None:
     """Say when the rows behind a set mix production classes (broilers with layers, dairy with beef)."""
-    classes: dict[str, int] = {}
-    for rows in resolver.groups.values():
-        for r in rows:
-            classes[r["class_id"] or "not stated"] = classes.get(r["class_id"] or "not stated", 0) + 1
-    named = {c: n for c, n in classes.items() if c != "not stated"}
-    if len(named) > 1 or (resolver.animal_class and "not stated" in classes):
-        ps.checks.append({"check": "classes_mixed", "status": "warn", "detail": "rows of " + ", ".join(
-            f"{c} ({n})" for c, n in sorted(classes.items())) + " are combined; choose one with the class option"
-            if not resolver.animal_class else f"class {resolver.animal_class} plus rows that name no class "
-            f"({classes.get('not stated', 0)})"})
+    from collections import Counter
+
+    classes = Counter(r["class_id"] or "not stated" for rows in resolver.groups.values() for r in rows)
+    if resolver.animal_class:
+        if classes["not stated"]:
+            detail = f"class {resolver.animal_class} plus rows that name no class ({classes['not stated']})"
+        else:
+            return
+    elif len(set(classes) - {"not stated"}) > 1:
+        counts = ", ".join(f"{c} ({n})" for c, n in sorted(classes.items()))
+        detail = f"rows of {counts} are combined; choose one with the class option"
+    else:
+        return
+    ps.checks.append({"check": "classes_mixed", "status": "warn", "detail": detail})
 
 
 def _cardiac_output_from_other_stage(store, species, life_stage, sex, verified_only, bw: float,

@@ -7,7 +7,7 @@ import re
 import numpy as np
 import pandas as pd
 
-from ..schema.model import PORTAL_ORGANS
+from ..schema.model import LIVER, PORTAL_ORGANS, SHARES_OF_A_WHOLE
 from ..units import UnitError, conversion
 from .findings import Findings
 from .read import CuratedTree
@@ -57,22 +57,24 @@ def check_sums(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> No
     comps = tree.vocab["compartments"]
     top_level = set(comps.loc[(comps["part_of"].str.strip() == "") & (comps["kind"] != "whole_body"), "id"])
 
+    mass_share, flow_share = SHARES_OF_A_WHOLE  # the same limits parameter sets check (schema/model.py)
+
     def masses(values, places):
         total = values.sum()
-        return total if total > 1.0 + 1e-9 else None
+        return total if total > SHARES_OF_A_WHOLE[mass_share] + 1e-9 else None
 
     def flows(values, places):
         counted = np.ones(len(values), dtype=bool)
-        if "liver" in set(places):  # liver flow is total hepatic flow, which already carries the portal organs
+        if LIVER in set(places):  # liver flow is total hepatic flow, which already carries the portal organs
             counted = ~np.isin(places, list(PORTAL_ORGANS))
         total = values[counted].sum()
-        return total if total > 1.1 or (counted.sum() >= 8 and total < 0.9) else None
+        return total if total > SHARES_OF_A_WHOLE[flow_share] or (counted.sum() >= 8 and total < 0.9) else None
 
-    _sum_warnings(frame, "tissue_mass_fraction", top_level, findings, masses,
+    _sum_warnings(frame, mass_share, top_level, findings, masses,
                   lambda first, total: f"organ mass fractions of {first['species']} ({first['life_stage']}) in this "
                                        f"source sum to {total:.3f}, above 1; check for a part counted with its whole "
                                        "or a % read as 1", "W302")
-    _sum_warnings(frame, "blood_flow_fraction", top_level, findings, flows,
+    _sum_warnings(frame, flow_share, top_level, findings, flows,
                   lambda first, total: f"blood flow fractions of {first['species']} ({first['life_stage']}) in this "
                                        f"source sum to {total:.3f} of cardiac output (portal organs counted within "
                                        "liver); a full set should be near 1", "W302")
