@@ -42,6 +42,7 @@ def allometric_cell(store, species: str, stage: str, layout, pick, body_mass: fl
     from .allometry import fit_power_law
 
     own_class = _taxon(store, species)
+    best = []  # the peer stage with most species, for the reason when none has enough
     for peer_stage in (stage, *STAGE_FALLBACK.get(stage, ())):  # peers of the same stage first
         points = []
         for other, ps in _peer_sets(store, species, peer_stage, layout).items():
@@ -54,7 +55,9 @@ def allometric_cell(store, species: str, stage: str, layout, pick, body_mass: fl
                            cell.value / per(ps) if per and per(ps) else None))
         if len(points) >= MIN_SPECIES:
             break
+        best = max(best, points, key=len)
     if len(points) < MIN_SPECIES:
+        points = best
         return None, (f"allometric fill refused: {len(points)} {own_class} species have it "
                       f"({', '.join(p[0] for p in points) or 'none'}); a fit needs {MIN_SPECIES} of the same class")
     fit = fit_power_law([p[1] for p in points], [p[2] for p in points], [p[0] for p in points])

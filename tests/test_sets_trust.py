@@ -80,6 +80,26 @@ def test_fills_come_from_the_same_class_and_are_of_use(store):
                 assert "mammal species" in cell.method and cell.high / cell.low <= 10, (species, comp, parameter)
 
 
+def test_a_refused_fill_names_the_peers_that_do_have_the_parameter(store):
+    """The reason counts the peers of the animal's own stage, not of the last fallback stage tried."""
+    import re
+
+    dog = store.parameter_set("dog", body_mass="12 kg", fill="allometric")
+    mammals = [s for s in store.ids("species") if s != "dog"
+               and store.query("SELECT taxon_class FROM species WHERE id = ?", (s,))[0][0] == "mammal"]
+    peers = {s: store.parameter_set(s, life_stage="adult") for s in mammals}
+    checked = 0
+    for comp, parameter, cell in dog.cells():
+        found = re.search(r"fill refused: (\d+) mammal species have it \(([^)]*)\)", cell.reason or "")
+        if cell.origin != "gap" or not found or parameter not in ("volume", "blood_flow"):
+            continue
+        cells = {s: (p.volumes if parameter == "volume" else p.flows).get(comp) for s, p in peers.items()}
+        having = sorted(s for s, c in cells.items() if c is not None and c.origin not in ("gap", "not_applicable"))
+        assert int(found.group(1)) >= len(having), (comp, parameter, found.group(0), having)
+        checked += 1
+    assert checked, "no refused fill of too few species to check"
+
+
 def test_verification_is_carried_by_every_number(store):
     ps = store.parameter_set("dog", body_mass="12 kg")
     for comp, parameter, cell in ps.cells():
