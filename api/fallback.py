@@ -59,9 +59,13 @@ def fall_back(store, ps, make_set) -> None:
         for cells, key, slot in _gap_cells(ps):
             found = _cell_of(other, slot)
             if found is not None and found.origin not in ("gap", "not_applicable"):
-                cells[key] = replace(found, origin="fallback",
-                                     method=f"from {stage} rows (stage fallback): {found.method}")
+                cells[key] = from_stage(found, stage)
     point_to_other_stages(ps, counts)
+
+
+def from_stage(cell, stage: str):
+    """A number of another life stage's set, named as a fallback on the value."""
+    return replace(cell, origin="fallback", stage=stage, method=f"from {stage} rows (stage fallback): {cell.method}")
 
 
 def _cell_of(ps, slot: str):

@@ -14,7 +14,7 @@ import pandas as pd
 from .. import CAUTION
 from ..schema.model import (LIVER, PARAMETERS, PORTAL_ORGANS, SHARES_OF_A_WHOLE, VESSELS_OF_LIVER, circulation,
                             has_own_flow, is_portal, is_pulmonary, parameter_of, slot_id)
-from .fallback import fall_back, other_stage_rows, point_to_other_stages, stage_order
+from .fallback import fall_back, from_stage, other_stage_rows, point_to_other_stages, stage_order
 from .layouts import REST, Layout, load_layout
 from .pooling import Estimate
 from .resolve import SAME_BODY_WEIGHT, SAME_SUBJECTS, Resolved, Resolver
@@ -49,6 +49,7 @@ class Cell:
     depends_on: tuple[str, ...] = ()  # slot ids (schema.model) whose curated data this number uses
     verified_share: float | None = None  # share of its weight on rows read in their source (None: not from rows)
     mass: float | None = None  # kg, for volumes: volume × the tissue density used (closes the mass balance)
+    stage: str | None = None  # the life stage whose rows gave a stage-fallback number
 
     @classmethod
     def gap(cls, unit: str, reason: str) -> "Cell":
@@ -72,6 +73,8 @@ class Cell:
                                     else "range of the study values")
         if self.reason:
             out["reason"] = self.reason
+        if self.stage:
+            out["from_stage"] = self.stage
         return out
 
 
@@ -451,15 +454,6 @@ def _source_sum_checks(resolver: Resolver, ps: ParameterSet) -> None:
                                         f"{total:.3f} (limit {limit:g})"))
 
 
-def _body_mass_from_other_stage(store, species, life_stage, sex, verified_only) -> Cell | None:
-    for stage in stage_order(life_stage, [r[0] for r in store.query(
-            "SELECT DISTINCT life_stage_id FROM curated_values WHERE species_id = ?", (species,))]):
-        cell, bw = _body_mass(Resolver(store, species, stage, sex, verified_only=verified_only), None)
-        if bw is not None:
-            return replace(cell, origin="fallback", method=f"from {stage} rows (stage fallback): {cell.method}")
-    return None
-
-
 def _class_check(resolver: Resolver, ps: ParameterSet) -> None:
     """Say when the rows behind a set mix production classes (broilers with layers, dairy with beef)."""
     from collections import Counter
@@ -478,17 +472,27 @@ def _class_check(resolver: Resolver, ps: ParameterSet) -> None:
     ps.checks.append({"check": "classes_mixed", "status": "warn", "detail": detail})
 
 
-def _cardiac_output_from_other_stage(store, species, life_stage, sex, verified_only, bw: float,
-                                     animal_class=None) -> Cell | None:
+def _from_other_stage(store, species, life_stage, sex, verified_only, animal_class, number) -> Cell | None:
+    """The first of the other stages (nearest first) whose rows give ``number(resolver)``, named as a fallback."""
     stages = [r[0] for r in store.query("SELECT DISTINCT life_stage_id FROM curated_values WHERE species_id = ?",
                                         (species,))]
     for stage in stage_order(life_stage, stages):
-        resolved = Resolver(store, species, stage, sex, verified_only=verified_only,
-                            animal_class=animal_class).cardiac_output(bw)
-        if resolved.ok:
-            cell = _scaled_cell(resolved, 1.0, "L/h", bw)
-            return replace(cell, origin="fallback", method=f"from {stage} rows (stage fallback): {cell.method}")
+        cell = number(Resolver(store, species, stage, sex, verified_only=verified_only, animal_class=animal_class))
+        if cell is not None:
+            return from_stage(cell, stage)
     return None
+
+
+def _cardiac_output_of(bw: float):
+    def number(resolver):
+        resolved = resolver.cardiac_output(bw)
+        return _scaled_cell(resolved, 1.0, "L/h", bw) if resolved.ok else None
+    return number
+
+
+def _typical_body_mass(resolver) -> Cell | None:
+    cell, bw = _body_mass(resolver, None)
+    return cell if bw is not None else None
 
 
 def _studied_range_check(resolver: Resolver, ps: ParameterSet) -> None:
@@ -543,7 +547,7 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
     options = dict(sex=sex, layout=lay, fill=fill, units=units, verified_only=verified_only,
                    animal_class=animal_class)
     if bw is None and stage_fallback:
-        borrowed = _body_mass_from_other_stage(store, species, life_stage, sex, verified_only)
+        borrowed = _from_other_stage(store, species, life_stage, sex, verified_only, animal_class, _typical_body_mass)
         if borrowed is not None:
             ps = parameter_set(store, species, life_stage=life_stage, body_mass=borrowed.value, stage_fallback=True,
                                **options)
@@ -555,7 +559,8 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
     else:
         co = _scaled_cell(resolver.cardiac_output(bw), 1.0, "L/h", bw)
     if stage_fallback and co.origin == "gap" and bw is not None:  # the flows below are shares of it
-        co = _cardiac_output_from_other_stage(store, species, life_stage, sex, verified_only, bw, animal_class) or co
+        co = _from_other_stage(store, species, life_stage, sex, verified_only, animal_class,
+                               _cardiac_output_of(bw)) or co
     if fill == "allometric" and co.origin == "gap" and bw is not None:
         from .fill import fill_cardiac_output
 

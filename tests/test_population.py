@@ -286,6 +286,54 @@ def test_command_writes_files_and_says_what_it_drew(toy_store, tmp_path):
     assert quiet.exit_code == 0 and quiet.output == ""
 
 
+def test_command_writes_individuals_as_sets_that_a_reader_loads(real_store, tmp_path):
+    """--sets K writes K individuals as JSON and SBML; the SBML is valid for libsbml and each JSON holds the
+    individual's own row. A population that keeps gaps is refused before anything is drawn."""
+    import libsbml
+
+    out = tmp_path / "people.csv"
+    result = CliRunner().invoke(cli, ["population", "human", "--n", "40", "--seed", "5", "--out", str(out),
+                                      "--sets", "3", "--without-sd", "default-cv", "--workers", "1",
+                                      "--store", str(real_store.path)])
+    assert result.exit_code == 0, result.output
+    frame = pd.read_csv(out).set_index("individual")
+    folder = Path(str(out) + ".sets")
+    assert sorted(p.name for p in folder.iterdir()) == [f"individual_{i}.{x}" for i in range(3) for x in ("json", "xml")]
+    for i in range(3):
+        data = json.loads((folder / f"individual_{i}.json").read_text())
+        assert data["body_mass"]["value"] == pytest.approx(frame.loc[i, "body_mass"], rel=1e-12)
+        assert data["body_mass"]["origin"] == "drawn"
+        doc = libsbml.readSBMLFromString((folder / f"individual_{i}.xml").read_text())
+        assert doc.getNumErrors(libsbml.LIBSBML_SEV_ERROR) == 0
+    gappy = tmp_path / "cats.csv"  # the adult cat's set has many gaps (skin, bone, adipose among them)
+    assert real_store.parameter_set("cat", body_mass="4 kg").gaps
+    refused = CliRunner().invoke(cli, ["population", "cat", "--n", "40", "--seed", "5", "--out", str(gappy),
+                                       "--sets", "2", "--body-mass", "4 kg", "--store", str(real_store.path)])
+    assert refused.exit_code == 1 and "keeps gaps" in str(refused.exception) and not gappy.exists()
+
+
+def test_stage_fallback_and_class_reach_the_population(real_store):
+    """A lactating cow and a broiler draw from their class's rows, borrowing other stages where asked;
+    a borrowed number draws its spread from the rows of the stage it came from."""
+    spreads_borrowed = []
+    for species, stage, animal_class, mass in (("cattle", "lactating", "dairy", "650 kg"),
+                                               ("chicken", "juvenile", "broiler", "2.5 kg"),
+                                               ("pig", "juvenile", None, "100 kg")):
+        plain = real_store.parameter_set(species, life_stage=stage, body_mass=mass, animal_class=animal_class,
+                                         stage_fallback=True)
+        pop = real_store.population(species, 2_000, 3, life_stage=stage, body_mass=mass, animal_class=animal_class,
+                                    stage_fallback=True, without_sd="default_cv", workers=1)
+        assert_balanced(pop.frame, pop)
+        borrowed = [c for _, _, c in plain.cells() if c.origin == "fallback"]
+        assert all(c.stage and c.stage != stage for c in borrowed)
+        means = {v["column"]: v for v in pop.sidecar["variables"]}
+        assert means["cardiac_output"]["mean_origin"] == plain.cardiac_output.origin
+        spreads_borrowed += [v["column"] for v in means.values()
+                             if v["mean_origin"] == "fallback" and v["sd_from"].startswith("pooled between-animal")]
+    # pig brain and gut volumes come from adult rows with SDs (and the broiler's bone flow from other ages)
+    assert spreads_borrowed
+
+
 def test_command_errors_are_one_line(toy_store, tmp_path):
     from bodyplan.cli import main
 

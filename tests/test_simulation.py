@@ -26,6 +26,7 @@ import pytest
 import roadrunner  # the test extra installs it (libroadrunner); a missing simulator is an error, not a skip
 
 from bodyplan.api.parameters import ParameterSetError
+from bodyplan.api.population import PopulationError
 from bodyplan.api.sbml import NS, SBML_UNITS
 from bodyplan.units import ureg
 
@@ -205,7 +206,7 @@ def simulation_set(store, species, body_mass, stage, request):
         gaps = ", ".join(f"{g['compartment']}.{g['quantity']}" for g in ps.gaps)
         request.node.add_marker(pytest.mark.xfail(
             reason=f"{species} {stage} {body_mass} still has gaps with fill='allometric': {gaps}", strict=False,
-            raises=ParameterSetError))
+            raises=(ParameterSetError, PopulationError)))
     return ps
 
 
@@ -227,9 +228,9 @@ def simulate_both(ps, times_per_slowest=(0.05, 0.5, 2.0, 40.0)):
 
 
 # ---- end to end -----------------------------------------------------------------------------------
-@pytest.mark.parametrize("species,body_mass,stage", STRATA, ids=[f"{s}-{m.replace(' ', '')}-{st}" for s, m, st in STRATA])
-def test_flow_limited_model_from_the_sbml_file(real_store, species, body_mass, stage, request):
-    ps = simulation_set(real_store, species, body_mass, stage, request)
+def assert_simulates(ps):
+    """The drug model built from the set's SBML, and the numpy model reading its JSON, keep the mass and
+    flow balances, reach infusion rate / clearance, and agree point by point."""
     sbml_run, numpy_run, times, q_h, reference = simulate_both(ps)
     clearance = q_h * q_h / (q_h + q_h)  # well-stirred, fu = 1, BP = 1, CLint = Q_H
     infused = INFUSION * times
@@ -248,6 +249,31 @@ def test_flow_limited_model_from_the_sbml_file(real_store, species, body_mass, s
     # the steady state the numpy model solves for directly is the one both runs reach
     steady = reference.steady_state()
     assert steady[0] / reference.volumes[0] == pytest.approx(INFUSION / clearance, rel=1e-9)
+
+
+STRATA_IDS = [f"{s}-{m.replace(' ', '')}-{st}" for s, m, st in STRATA]
+
+
+@pytest.mark.parametrize("species,body_mass,stage", STRATA, ids=STRATA_IDS)
+def test_flow_limited_model_from_the_sbml_file(real_store, species, body_mass, stage, request):
+    assert_simulates(simulation_set(real_store, species, body_mass, stage, request))
+
+
+@pytest.mark.parametrize("species,body_mass,stage", STRATA, ids=STRATA_IDS)
+def test_individuals_of_a_population_simulate(real_store, species, body_mass, stage, request):
+    """Individuals drawn around the stratum (body mass CV 10 %, a 30 % CV where no SD is stored) exported
+    as parameter sets: each one, not only the mean animal, builds a model that keeps its balances."""
+    fill = simulation_set(real_store, species, body_mass, stage, request).fill
+    pop = real_store.population(species, 300, 11, life_stage=stage, body_mass=body_mass, body_mass_cv=0.1,
+                                fill=fill, without_sd="default_cv", workers=1)
+    chosen = [0, 150, 299]
+    sets = pop.parameter_sets(chosen)
+    frame = pop.frame.set_index("individual")
+    for i, ps in zip(chosen, sets):
+        assert ps.body_mass.value == frame.loc[i, "body_mass"] and ps.body_mass.origin == "drawn"
+        assert ps.volumes["rest_of_body"].value == pytest.approx(frame.loc[i, "rest_of_body.volume"], rel=1e-9)
+        assert ps.flows["rest_of_body"].value == pytest.approx(frame.loc[i, "rest_of_body.blood_flow"], rel=1e-9)
+        assert_simulates(ps)
 
 
 def test_the_checks_catch_a_miswired_portal_circulation(real_store):

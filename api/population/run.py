@@ -39,6 +39,12 @@ class Population:
     frame: object = None  # pandas DataFrame when no path was given
     columns: list[tuple[str, str]] = field(default_factory=list)
 
+    def parameter_sets(self, individuals) -> list:
+        """The parameter sets of the given individuals; see :func:`individuals.individual_sets`."""
+        from .individuals import individual_sets
+
+        return individual_sets(self, individuals)
+
 
 def grid(n: int) -> list[tuple[int, int]]:
     """The fixed block grid of n individuals: (block, size) pairs; block i holds individuals from i·GRID."""

@@ -84,6 +84,7 @@ class PopulationSpec:
     filled: list[str] = field(default_factory=list)  # columns whose mean is an allometric fill
     without_sd: str = "fixed"
     balance: str = "redraw"
+    parameter_set: object = field(default=None, repr=False, compare=False)  # the set the means come from
 
     @property
     def volumes(self) -> list[Variable]:
@@ -230,8 +231,11 @@ def _co_exponent(resolver, bm: float) -> tuple[float, str]:
 def population_spec(store, species: str, *, life_stage: str = "adult", sex: str | None = None, body_mass=None,
                     body_mass_cv: float | None = None, body_mass_range=None, layout="whole_body",
                     fill: str = "none", without_sd: str = "fixed", default_cv: float = DEFAULT_CV,
-                    balance: str = "redraw") -> PopulationSpec:
-    """The variables a population of ``species`` is drawn from; see the module notes for the rules."""
+                    balance: str = "redraw", stage_fallback: bool = False, animal_class: str | None = None,
+                    verified_only: bool = False) -> PopulationSpec:
+    """The variables a population of ``species`` is drawn from; see the module notes for the rules.
+    ``stage_fallback``, ``animal_class`` and ``verified_only`` choose the parameter set as they do for
+    :func:`parameter_set`; a number taken from another stage draws its spread from that stage's rows."""
     if without_sd not in WITHOUT_SD:
         raise PopulationError(f"without_sd must be one of {', '.join(WITHOUT_SD)}, not {without_sd!r}")
     if balance not in BALANCE_RULES:
@@ -245,7 +249,8 @@ def population_spec(store, species: str, *, life_stage: str = "adult", sex: str 
         centre = sum(_mass(x) for x in body_mass_range) / 2
     elif body_mass is not None:
         centre = _mass(body_mass)
-    ps = parameter_set(store, species, life_stage=life_stage, sex=sex, body_mass=centre, layout=layout, fill=fill)
+    ps = parameter_set(store, species, life_stage=life_stage, sex=sex, body_mass=centre, layout=layout, fill=fill,
+                       stage_fallback=stage_fallback, animal_class=animal_class, verified_only=verified_only)
     if ps.body_mass.origin == "gap":
         raise PopulationError(f"{species} ({life_stage}) has no stored body mass; give one (body_mass=, --body-mass)")
     if ps.cardiac_output.origin == "gap":
@@ -254,12 +259,21 @@ def population_spec(store, species: str, *, life_stage: str = "adult", sex: str 
                                  if fill == "allometric" else "; try fill='allometric' (--fill allometric)")
                               + ": flows cannot be drawn without it")
     bm = ps.body_mass.value
-    resolver = Resolver(store, species, life_stage, sex)
-    body = _body_mass_variable(ps, resolver, bm, body_mass_cv, body_mass_range, without_sd)
+    resolvers: dict[str, Resolver] = {}
+
+    def rows_of(cell) -> Resolver:  # the rows behind a number: of its own stage, or the stage it fell back to
+        stage = cell.stage or life_stage
+        if stage not in resolvers:
+            resolvers[stage] = Resolver(store, species, stage, sex, verified_only=verified_only,
+                                        animal_class=animal_class)
+            resolvers[stage].target_mass = bm
+        return resolvers[stage]
+
+    body = _body_mass_variable(ps, rows_of(ps.body_mass), bm, body_mass_cv, body_mass_range, without_sd)
     variables = []
     co = ps.cardiac_output
-    exponent, how = _co_exponent(resolver, bm)
-    co_res = resolver.cardiac_output(bm)
+    exponent, how = _co_exponent(rows_of(co), bm)
+    co_res = rows_of(co).cardiac_output(bm)
     cov = _variable("cardiac_output", "cardiac_output", "whole_body", "L/h",
                     f"L/h at {bm:.6g} kg, times (body mass / {bm:.6g} kg)^{exponent:.3g}: {how}", co.value, co,
                     (*_row_cvs(co_res), *_mean_uncertainty(co_res)), without_sd, default_cv, "lognormal")
@@ -271,7 +285,7 @@ def population_spec(store, species: str, *, life_stage: str = "adult", sex: str 
         if cell.origin == "gap":
             missing.append({"column": name, "reason": cell.reason})
             continue
-        res = resolver.resolve(name)
+        res = rows_of(cell).resolve(name)
         fraction = name == "hematocrit"
         form = "fraction of blood volume" if fraction else "L/h per kg body mass"
         mean = cell.value if fraction else cell.value / bm
@@ -285,7 +299,7 @@ def population_spec(store, species: str, *, life_stage: str = "adult", sex: str 
         if cell.origin == "gap":
             in_rest.append({"column": slot_id(comp, "volume"), "reason": cell.reason})
             continue
-        resolved = [resolver.volume_per_kg(p) for p in parts]
+        resolved = [rows_of(cell).volume_per_kg(p) for p in parts]
         spread = _lumped([(r.estimate.value, r) for r in resolved]) if all(r.ok for r in resolved) else _NONE
         var = _variable(slot_id(comp, "volume"), "volume", comp, "L", "L per kg body mass", cell.value / bm, cell,
                         spread, without_sd, default_cv, "beta")
@@ -320,7 +334,7 @@ def population_spec(store, species: str, *, life_stage: str = "adult", sex: str 
             else:  # as the parameter set sums them: portal organs inside the liver's total flow are not added
                 pieces = [p for p in parts if not is_pulmonary([p])
                           and not (not portal_models and p in PORTAL_ORGANS and liver not in (None, comp))]
-            resolved = [resolver.flow_fraction(p) for p in pieces]
+            resolved = [rows_of(cell).flow_fraction(p) for p in pieces]
             if pieces and all(r.ok for r in resolved):
                 spread = _lumped([(r.estimate.value, r) for r in resolved])
         var = _variable(slot_id(comp, "blood_flow"), "blood_flow", comp, "L/h", "fraction of cardiac output",
@@ -337,7 +351,7 @@ def population_spec(store, species: str, *, life_stage: str = "adult", sex: str 
     _check_distribution(body)
     _check_room([v for v in variables if v.parameter == "volume"], [v for v in variables if v.parameter == "blood_flow"])
     return PopulationSpec(species, life_stage, sex, ps.layout.name, fill, body, variables, [*comps, REST], pulmonary,
-                          in_rest, missing, filled, without_sd, balance)
+                          in_rest, missing, filled, without_sd, balance, ps)
 
 
 def _check_room(volumes: list[Variable], flows: list[Variable]) -> None:

@@ -26,6 +26,15 @@ def store_option(f):
                         help="Store file (default: $BODYPLAN_STORE, else the bundled store).")(f)
 
 
+def set_choice_options(f):
+    """The options that choose which rows a parameter set rests on (params and population share them)."""
+    f = click.option("--class", "animal_class", default=None,
+                     help="Production class or breed (vocab/classes.csv: broiler, layer, dairy, minipig …).")(f)
+    f = click.option("--verified-only", is_flag=True, help="Use only rows read in their source text.")(f)
+    return click.option("--stage-fallback", is_flag=True,
+                        help="Fill gaps from this species' rows at other life stages (named on each value).")(f)
+
+
 def force_option(f):
     return click.option("--force", is_flag=True,
                         help="Overwrite an existing --out of another kind (a file the command reads is never overwritten).")(f)

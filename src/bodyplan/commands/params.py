@@ -6,7 +6,7 @@ import sys
 
 import click
 
-from ..output import choose_ids, force_option, guard_out, renamed_option, store_option, to_json
+from ..output import choose_ids, force_option, guard_out, renamed_option, set_choice_options, store_option, to_json
 
 
 def _value_text(value, sd=None, se=None, low=None, high=None) -> str:
@@ -99,11 +99,7 @@ OUT_SUFFIXES = {"json": (".json",), "csv": (".csv",), "sbml": (".xml", ".sbml"),
               help="SI: L and L/h; clinical: mL and mL/min.")
 @click.option("--format", "fmt", type=click.Choice(["table", "csv", "json", "sbml"]), default="table",
               show_default=True, help="Output format.")
-@click.option("--stage-fallback", is_flag=True,
-              help="Fill gaps from this species' rows at other life stages (named on each value).")
-@click.option("--verified-only", is_flag=True, help="Use only rows read in their source text.")
-@click.option("--class", "animal_class", default=None,
-              help="Production class or breed (vocab/classes.csv: broiler, layer, dairy, minipig …).")
+@set_choice_options
 @click.option("--allow-gaps", is_flag=True, help="SBML: export a set with gaps, each marked and set to NaN.")
 @click.option("--compound", "compound_file", type=click.Path(dir_okay=False, exists=True), default=None,
               help="A compound file (TOML or CSV, as for bodyplan kp): add Kp of every compartment to the set.")

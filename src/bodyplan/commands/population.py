@@ -7,7 +7,7 @@ import time
 
 import click
 
-from ..output import store_option
+from ..output import set_choice_options, store_option
 
 
 class _Progress:
@@ -37,6 +37,17 @@ class _Progress:
     def stop(self) -> None:
         if self.bar is not None:
             self.bar.stop()
+
+
+def _write_sets(pop, k: int):
+    """Individuals 0..k−1 as parameter-set files beside the population (refused before writing if any has gaps)."""
+    sets = pop.parameter_sets(range(k))
+    folder = pop.path.with_name(pop.path.name + ".sets")
+    folder.mkdir(exist_ok=True)
+    for i, ps in enumerate(sets):
+        (folder / f"individual_{i}.json").write_text(ps.to_json() + "\n", encoding="utf-8")
+        (folder / f"individual_{i}.xml").write_text(ps.to_sbml(), encoding="utf-8")
+    return folder
 
 
 def summary(pop) -> list[str]:
@@ -99,9 +110,13 @@ def summary(pop) -> list[str]:
 @click.option("--chunk-size", type=click.IntRange(min=1), default=None, help="Individuals per chunk (whole blocks of 8192).")
 @click.option("--workers", type=click.IntRange(min=1), default=None, help="Processes (default: every core).")
 @click.option("--quiet", is_flag=True, help="No progress bar and no summary.")
+@click.option("--sets", "n_sets", type=click.IntRange(min=1), default=None, metavar="K",
+              help="Also write individuals 0 to K−1 as parameter sets (JSON and SBML) in the directory OUT.sets.")
+@set_choice_options
 @store_option
 def population_cmd(species, n, seed, out, fmt, life_stage, sex, body_mass, body_mass_cv, body_mass_range, layout,
-                   fill, without_sd, default_cv, balance, mean_uncertainty, chunk_size, workers, quiet, store_path):
+                   fill, without_sd, default_cv, balance, mean_uncertainty, chunk_size, workers, quiet, n_sets, stage_fallback,
+                   verified_only, animal_class, store_path):
     """N virtual individuals of SPECIES: every compartment's volume and flow, cardiac output, GFR,
     hematocrit and body mass, drawn from the stored between-animal variability with both balances kept."""
     from .. import CAUTION
@@ -115,14 +130,19 @@ def population_cmd(species, n, seed, out, fmt, life_stage, sex, body_mass, body_
             species, n, seed, life_stage=life_stage, sex=sex, body_mass=body_mass, body_mass_cv=body_mass_cv,
             body_mass_range=tuple(body_mass_range) if body_mass_range else None, layout=layout, fill=fill,
             without_sd=without_sd.replace("-", "_"), default_cv=DEFAULT_CV if default_cv is None else default_cv,
-            balance=balance, mean_uncertainty=mean_uncertainty, out=out, fmt=fmt,
+            balance=balance, stage_fallback=stage_fallback, verified_only=verified_only, animal_class=animal_class,
+            mean_uncertainty=mean_uncertainty, out=out, fmt=fmt, as_sets=bool(n_sets),
             chunk_size=chunk_size or DEFAULT_CHUNK, workers=workers, progress=progress)
     finally:
         progress.stop()
+    if n_sets:
+        written = _write_sets(pop, min(n_sets, n))
     if quiet:
         return
     click.echo(f"wrote {pop.path} ({n:,} individuals × {len(pop.columns)} columns) and {pop.sidecar_path} "
                "(distributions, sources, balance)", err=True)
     for line in summary(pop):
         click.echo(line, err=True)
+    if n_sets:
+        click.echo(f"wrote {written} ({min(n_sets, n)} individuals as parameter sets, JSON and SBML)", err=True)
     click.echo(CAUTION, err=True)
