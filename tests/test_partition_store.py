@@ -214,9 +214,13 @@ def test_cli_table_json_csv_and_errors(store, tmp_path):
                               "--store", str(store.path)])
     data = json.loads(out.output)
     assert {r["borrowed_from"] for r in data["kp"] if r["tissue"] != "liver"} == {"rat"}
-    out = runner.invoke(cli, ["kp", "human", "--compound", str(path), "--method", "poulin-theil", "--berezhkovskiy",
+    out = runner.invoke(cli, ["kp", "human", "--compound", str(path), "--method", "berezhkovskiy",
                               "--format", "csv", "--store", str(store.path)])
     assert "Berezhkovskiy 2004" in out.output
+    old_spelling = runner.invoke(cli, ["kp", "human", "--compound", str(path), "--method", "poulin-theil",
+                                       "--berezhkovskiy", "--format", "csv", "--store", str(store.path)])
+    assert old_spelling.output.replace("note: --berezhkovskiy is deprecated and goes in the next release; "
+                                       "use --method berezhkovskiy\n", "") == out.output
     bad = tmp_path / "bad.csv"
     bad.write_text("name,log_p,fu_plasma,blood_plasma_ratio\nx,2,5,1\n")
     from bodyplan.cli import main

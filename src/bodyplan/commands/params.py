@@ -7,6 +7,7 @@ import sys
 import click
 
 from ..output import choose_ids, force_option, guard_out, renamed_option, set_choice_options, store_option, to_json
+from .partition import METHOD_CHOICES, kp_method_option
 
 
 def _value_text(value, sd=None, se=None, low=None, high=None) -> str:
@@ -103,8 +104,7 @@ OUT_SUFFIXES = {"json": (".json",), "csv": (".csv",), "sbml": (".xml", ".sbml"),
 @click.option("--allow-gaps", is_flag=True, help="SBML: export a set with gaps, each marked and set to NaN.")
 @click.option("--compound", "compound_file", type=click.Path(dir_okay=False, exists=True), default=None,
               help="A compound file (TOML or CSV, as for bodyplan kp): add Kp of every compartment to the set.")
-@click.option("--kp-method", type=click.Choice(["rodgers-rowland", "poulin-theil", "berezhkovskiy"]),
-              default="rodgers-rowland", show_default=True, help="How Kp are computed from tissue composition.")
+@kp_method_option("--kp-method")
 @click.option("--kp-borrow-from", default=None, metavar="SPECIES|closest",
               help="Borrow missing tissue composition from this species (marked on each Kp).")
 @click.option("--out", type=click.Path(dir_okay=False), default=None, help="Write to a file instead of stdout.")
@@ -132,7 +132,7 @@ def params_cmd(species, life_stage, sex, body_weight, layout, fill, units, fmt, 
                              fill=fill, units=units, stage_fallback=stage_fallback, verified_only=verified_only,
                              animal_class=animal_class)
     if compound_file:
-        ps.add_partition_coefficients(store, compound_file, method=kp_method.replace("-", "_"),
+        ps.add_partition_coefficients(store, compound_file, method=METHOD_CHOICES[kp_method],
                                       borrow_from=kp_borrow_from)
     text = {"json": lambda: to_json(ps.to_dict()), "csv": ps.to_csv,
             "sbml": lambda: ps.to_sbml(allow_gaps=allow_gaps)}.get(fmt)

@@ -8,7 +8,16 @@ import click
 
 from ..output import format_option, store_option
 
-METHOD_CHOICES = {"rodgers-rowland": "rodgers_rowland", "poulin-theil": "poulin_theil"}
+METHOD_CHOICES = {"rodgers-rowland": "rodgers_rowland", "poulin-theil": "poulin_theil",
+                  "berezhkovskiy": "berezhkovskiy"}
+METHOD_HELP = ("rodgers-rowland: the 2005 equation for moderate-to-strong bases, 2006 for the rest; poulin-theil: "
+               "Poulin & Theil 2002; berezhkovskiy: Poulin & Theil with the Berezhkovskiy 2004 correction.")
+
+
+def kp_method_option(name: str):
+    """The Kp method, spelled the same by every command that computes Kp."""
+    return click.option(name, "kp_method", type=click.Choice(list(METHOD_CHOICES)), default="rodgers-rowland",
+                        show_default=True, help=METHOD_HELP)
 SHORT = {"Rodgers, Leahy & Rowland 2005": "RR 2005", "Rodgers & Rowland 2006": "RR 2006",
          "Poulin & Theil 2002 with the Berezhkovskiy 2004 correction": "PT 2002 + B 2004",
          "Poulin & Theil 2002": "PT 2002"}
@@ -84,10 +93,9 @@ A compound file (TOML; CSV takes the same names as columns, pKa lists separated 
 @click.option("--compound", "compound_file", required=True, type=click.Path(dir_okay=False),
               help="Compounds: a .toml file of [[compound]] tables or a .csv file (name, log_p, log_p_oil, "
                    "pka_acid, pka_base, fu_plasma, blood_plasma_ratio).")
-@click.option("--method", type=click.Choice(list(METHOD_CHOICES)), default="rodgers-rowland", show_default=True,
-              help="rodgers-rowland: the 2005 equation for moderate-to-strong bases, 2006 for the rest; "
-                   "poulin-theil: Poulin & Theil 2002.")
-@click.option("--berezhkovskiy", is_flag=True, help="With poulin-theil: apply the Berezhkovskiy 2004 correction.")
+@kp_method_option("--method")
+@click.option("--berezhkovskiy", is_flag=True, hidden=True,
+              help="Deprecated: use --method berezhkovskiy.")
 @click.option("--borrow-from", "borrow_from", default=None, metavar="SPECIES|closest",
               help="Take a tissue's composition from this species where the species itself has none "
                    "(each such Kp is marked); 'closest' tries the same taxon class, rat first.")
@@ -97,21 +105,24 @@ A compound file (TOML; CSV takes the same names as columns, pKa lists separated 
               help="Write the csv or json output to this file instead of the terminal.")
 @format_option()
 @store_option
-def kp_cmd(species, compound_file, method, berezhkovskiy, borrow_from, borrow, life_stage, out_path, fmt,
+def kp_cmd(species, compound_file, kp_method, berezhkovskiy, borrow_from, borrow, life_stage, out_path, fmt,
            store_path):
     """Tissue:plasma partition coefficients (Kp) of every tissue of SPECIES for each compound."""
     from ..api import open_store
     from ..api.partition import PartitionError
 
-    if berezhkovskiy and method != "poulin-theil":
-        raise PartitionError("--berezhkovskiy corrects the Poulin & Theil method; add --method poulin-theil")
+    if berezhkovskiy:  # the old spelling, kept for one release
+        if kp_method not in ("poulin-theil", "berezhkovskiy"):
+            raise PartitionError("--berezhkovskiy corrects the Poulin & Theil method; use --method berezhkovskiy")
+        click.echo("note: --berezhkovskiy is deprecated and goes in the next release; use --method berezhkovskiy",
+                   err=True)
+        kp_method = "berezhkovskiy"
     if borrow and borrow_from:
         raise PartitionError("give either --borrow (from rat) or --borrow-from SPECIES, not both")
     if out_path and fmt == "table":
         raise PartitionError("--out writes csv or json; add --format csv or --format json")
-    api_method = "berezhkovskiy" if berezhkovskiy else METHOD_CHOICES[method]
     result = open_store(store_path).partition_coefficients(
-        species, compound_file, method=api_method, life_stage=life_stage,
+        species, compound_file, method=METHOD_CHOICES[kp_method], life_stage=life_stage,
         borrow_from="rat" if borrow else borrow_from)
     if fmt == "table":
         render_table(result)
