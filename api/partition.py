@@ -18,7 +18,7 @@ import pandas as pd
 
 from ..errors import BodyplanError
 from . import kp_methods as km
-from ..schema.model import COMPOSITION as ROLES
+from ..schema.model import COMPOSITION as ROLES, has_own_flow
 from .compound import Compound, Compounds, compounds_from
 
 PLASMA, RBC = "plasma", "red_blood_cells"
@@ -425,7 +425,8 @@ def model_partition_coefficients(kp: KpResult, parameter_set, store) -> pd.DataF
     """Kp per MODEL compartment of ``parameter_set``: volume-weighted over its stored parts.
 
     Returns one row per (compound, model compartment): ``kp`` (tissue:plasma), ``kp_blood``
-    (tissue:blood = Kp / blood:plasma ratio), ``status`` (computed, borrowed, partial, gap),
+    (tissue:blood = Kp / blood:plasma ratio), ``status`` (computed, borrowed, partial, gap, or
+    reference for blood itself),
     ``parts`` and ``parts_without_kp``, ``weights`` (each part's share of the volume used),
     ``sources`` and ``reason``. A compartment made of one stored part takes that part's Kp; a
     lumped one weights its parts by their stored volume per kg body weight; parts without a Kp
@@ -454,6 +455,11 @@ def model_partition_coefficients(kp: KpResult, parameter_set, store) -> pd.DataF
             row = {"compound": compound, "compartment": model, "kp": math.nan, "kp_blood": math.nan,
                    "status": "gap", "parts": list(parts), "parts_without_kp": lacking, "weights": {},
                    "borrowed_from": "", "sources": "", "reason": ""}
+            if not has_own_flow(parts):  # blood itself: the reference of every tissue:blood Kp
+                row.update(kp=float(bp[compound]), kp_blood=1.0, status="reference", parts_without_kp=[],
+                           reason="blood is the reference: tissue:blood 1, tissue:plasma the blood:plasma ratio")
+                rows.append(row)
+                continue
             if not have:
                 row["reason"] = "no part has a Kp: " + ", ".join(parts)
                 rows.append(row)

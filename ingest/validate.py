@@ -159,7 +159,23 @@ def check_sources(tree: CuratedTree, findings: Findings) -> set[str]:
                 findings.error(BIB_FILE, src["line"], required, f"entry {src['key']!r} has no {required}; add it", code="V212")
         keys.add(src["key"])
     check_derived_from(tree.sources, keys, findings)
+    check_one_entry_per_doi(tree.sources, findings)
     return keys
+
+
+def check_one_entry_per_doi(sources: list[dict], findings: Findings) -> None:
+    """One publication is one source: its rows would otherwise count the same animals twice."""
+    first: dict[str, dict] = {}
+    for src in sources:
+        doi = src["fields"].get("doi", "").strip().lower().removeprefix("https://doi.org/")
+        if not doi:
+            continue
+        if doi in first:
+            findings.error(BIB_FILE, src["line"], "doi", f"entry {src['key']!r} has the DOI of "
+                           f"{first[doi]['key']!r} (line {first[doi]['line']}); one publication is one source: "
+                           "keep one entry and move its rows into that source's values file", code="V242")
+        else:
+            first[doi] = src
 
 
 def check_derived_from(sources: list[dict], keys: set[str], findings: Findings) -> None:

@@ -211,6 +211,15 @@ def test_derived_from_in_a_circle(tree):
                              "V237")]
 
 
+def test_one_publication_is_one_source(tree):
+    """The same DOI under two keys would count the same animals twice; case and the resolver prefix do not hide it."""
+    add_bib_field(tree, "testsource2020", "doi = {10.1000/ABC.1}")
+    add_bib_field(tree, "testsource2021", "doi = {https://doi.org/10.1000/abc.1}")
+    assert errors(tree) == [("sources.bib:9: doi: entry 'testsource2021' has the DOI of 'testsource2020' (line 1); "
+                             "one publication is one source: keep one entry and move its rows into that source's "
+                             "values file", "V242")]
+
+
 def test_derived_from_reaches_the_store(tree, tmp_path):
     import sqlite3
 
