@@ -18,8 +18,9 @@ import pandas as pd
 
 from ..errors import BodyplanError
 from . import kp_methods as km
-from ..schema.model import COMPOSITION as ROLES, has_own_flow
+from ..schema.model import COMPOSITION as ROLES, REST_KP_LIKE, has_own_flow
 from .compound import Compound, Compounds, compounds_from
+from .layouts import REST
 
 PLASMA, RBC = "plasma", "red_blood_cells"
 NOT_TISSUES = {PLASMA, RBC, "blood", "arterial_blood", "whole_body"}
@@ -425,8 +426,8 @@ def model_partition_coefficients(kp: KpResult, parameter_set, store) -> pd.DataF
     """Kp per MODEL compartment of ``parameter_set``: volume-weighted over its stored parts.
 
     Returns one row per (compound, model compartment): ``kp`` (tissue:plasma), ``kp_blood``
-    (tissue:blood = Kp / blood:plasma ratio), ``status`` (computed, borrowed, partial, gap, or
-    reference for blood itself),
+    (tissue:blood = Kp / blood:plasma ratio), ``status`` (computed, borrowed, partial, gap,
+    reference for blood itself, or assumed for rest_of_body),
     ``parts`` and ``parts_without_kp``, ``weights`` (each part's share of the volume used),
     ``sources`` and ``reason``. A compartment made of one stored part takes that part's Kp; a
     lumped one weights its parts by their stored volume per kg body weight; parts without a Kp
@@ -480,4 +481,19 @@ def model_partition_coefficients(kp: KpResult, parameter_set, store) -> pd.DataF
                        status="partial" if lacking else ("borrowed" if donors else "computed"),
                        reason=("no Kp for " + ", ".join(lacking)) if lacking else "")
             rows.append(row)
+        rows.append(_rest_row(compound, rows, parameter_set.layout.compartments))
     return pd.DataFrame(rows)
+
+
+def _rest_row(compound: str, rows: list[dict], compartments: dict) -> dict:
+    """rest_of_body's Kp: that of the compartment holding REST_KP_LIKE, marked assumed; a gap without it."""
+    like = next((r for r in rows if r["compound"] == compound and REST_KP_LIKE in compartments.get(r["compartment"], ())),
+                None)
+    row = {"compound": compound, "compartment": REST, "kp": math.nan, "kp_blood": math.nan, "status": "gap",
+           "parts": [], "parts_without_kp": [], "weights": {}, "borrowed_from": "", "sources": "",
+           "reason": f"rest_of_body has no composition of its own and the set has no {REST_KP_LIKE} Kp to assume"}
+    if like is not None and not math.isnan(like["kp"]):
+        row.update(kp=like["kp"], kp_blood=like["kp_blood"], status="assumed", borrowed_from=like["borrowed_from"],
+                   sources=like["sources"], reason=f"rest_of_body has no composition of its own: the Kp of "
+                   f"{like['compartment']} is assumed (common practice, no source)")
+    return row

@@ -58,8 +58,9 @@ def _pool(rows: list[dict]) -> Estimate:
 
 def _verified_share(rows: list[dict], estimate: Estimate) -> float:
     """The pooling weight of the rows marked verified (read in their source text)."""
-    weights = estimate.details.get("weights") or [1.0 / len(rows)] * len(rows)
-    return float(sum(w for w, r in zip(weights, rows) if r["verified"]))
+    weights = estimate.details.get("weights") or [1.0] * len(rows)
+    # over the weights' own sum, so that every row read gives exactly 1 (not 1 − rounding)
+    return float(sum(w for w, r in zip(weights, rows) if r["verified"]) / sum(weights))
 
 
 def _one_route_per_source(rows: list[dict], preference: list[str]) -> list[dict]:

@@ -121,6 +121,9 @@ COMPOSITION = {
     "albumin_ratio": "albumin_ratio",
     "lipoprotein_ratio": "lipoprotein_ratio",
 }
+# rest_of_body has no composition of its own (it is what the named compartments leave of the body): its
+# Kp is taken as that of this tissue, marked "assumed" on the row (common practice, no source).
+REST_KP_LIKE = "muscle"
 # Life stages to borrow from when a stage lacks a parameter, nearest first (common practice, no source).
 STAGE_FALLBACK = {"lactating": ("adult", "pregnant"), "laying": ("adult",), "pregnant": ("adult",),
                   "senior": ("adult",), "adult": ("senior", "juvenile"), "juvenile": ("adult", "neonate"),

@@ -2,7 +2,7 @@
 
 Used by tests/test_simulation.py to check the SBML export against a second implementation that shares no
 code with bodyplan's SBML writer nor with the SBML reader of the tests. The drug has Kp = 1 in every
-tissue, blood:plasma ratio 1 and fraction unbound 1; the liver clears it with a well-stirred intrinsic
+tissue (or the set's own Kp of a named compound), and fraction unbound 1; the liver clears it with a well-stirred intrinsic
 clearance; a constant infusion goes into the blood pool. The model is linear, dA/dt = M A + b, so its
 time course is exact through a matrix exponential and its steady state is one linear solve.
 """
@@ -46,8 +46,10 @@ class FlowModel:
         return float(np.min(np.abs(np.linalg.eigvals(self.matrix).real)))
 
 
-def build(data: dict, intrinsic_clearance: float, infusion_rate: float) -> FlowModel:
-    """The model of a parameter set's ``to_dict()`` / JSON, in that set's units (amount per time unit)."""
+def build(data: dict, intrinsic_clearance: float, infusion_rate: float, compound: str | None = None) -> FlowModel:
+    """The model of a parameter set's ``to_dict()`` / JSON, in that set's units (amount per time unit).
+    With ``compound``, each tissue's tissue:blood Kp is read from the JSON's partition coefficients
+    (a tissue's venous blood leaves at its concentration / Kp); without, Kp = 1."""
     rows = {c["compartment"]: c for c in data["compartments"]}
     wiring = {e["compartment"]: e for e in data["circulation"]}
     pools = {s for e in wiring.values() for s in e["receives_from"] if s not in wiring}
@@ -65,6 +67,9 @@ def build(data: dict, intrinsic_clearance: float, infusion_rate: float) -> FlowM
     def outflow(c: str) -> float:
         return flows[c] + sum(outflow(s) for s in wiring[c]["receives_from"] if s != pool)
 
+    kp = {c: 1.0 for c in names}
+    if compound is not None:
+        kp.update({r["compartment"]: r["kp_blood"] for r in data["partition_coefficients"] if r["compound"] == compound})
     n = len(names)
     matrix = np.zeros((n, n))
     for c, entry in wiring.items():
@@ -72,10 +77,10 @@ def build(data: dict, intrinsic_clearance: float, infusion_rate: float) -> FlowM
             matrix[at[c], at[pool]] += flows[c] / volumes[at[pool]]
             matrix[at[pool], at[pool]] -= flows[c] / volumes[at[pool]]
         out, to = outflow(c), at[entry["drains_to"]]
-        matrix[to, at[c]] += out / volumes[at[c]]
-        matrix[at[c], at[c]] -= out / volumes[at[c]]
+        matrix[to, at[c]] += out / (volumes[at[c]] * kp[c])
+        matrix[at[c], at[c]] -= out / (volumes[at[c]] * kp[c])
     clearance_row = np.zeros(n)
-    clearance_row[at[liver]] = intrinsic_clearance / volumes[at[liver]]  # fu = 1, Kp = 1
+    clearance_row[at[liver]] = intrinsic_clearance / (volumes[at[liver]] * kp[liver])  # fu = 1
     matrix[at[liver], at[liver]] -= clearance_row[at[liver]]
     inflow = np.zeros(n)
     inflow[at[pool]] = infusion_rate

@@ -176,7 +176,15 @@ def test_model_compartments_are_volume_weighted(store):
     # the store holds no rat bone volume: the lumped compartment cannot be weighted, and says why
     slow = model.loc[("neutral_c", "slowly_perfused")]
     assert slow["status"] == "gap" and "bone" in slow["reason"]
-    assert model.loc[("neutral_c", "blood"), "status"] == "gap"  # no tissue composition for blood
+    # blood is the reference of a tissue:blood Kp; tissue:plasma is then the blood:plasma ratio (1.0 here)
+    blood = model.loc[("neutral_c", "blood")]
+    assert (blood["status"], blood["kp_blood"], blood["kp"]) == ("reference", 1.0, 1.0)
+    # rest_of_body has no composition: muscle lies in slowly_perfused, which has no Kp here, so it stays a gap
+    assert model.loc[("neutral_c", "rest_of_body"), "status"] == "gap"
+    whole = model_partition_coefficients(res, store.parameter_set("rat", body_mass="250 g"), store)
+    whole = whole.set_index(["compound", "compartment"])
+    rest, muscle = whole.loc[("neutral_c", "rest_of_body")], whole.loc[("neutral_c", "muscle")]
+    assert rest["status"] == "assumed" and rest["kp"] == muscle["kp"] and "muscle" in rest["reason"]
     with pytest.raises(PartitionError):
         model_partition_coefficients(res, store.parameter_set("dog", body_mass="10 kg"), store)
 

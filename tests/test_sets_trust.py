@@ -115,6 +115,17 @@ def test_verification_is_carried_by_every_number(store):
             assert cell.verified_share == pytest.approx(1.0), (comp, parameter)
 
 
+def test_a_number_on_read_rows_only_has_a_share_of_exactly_one(store):
+    """A share is a weighted fraction; a pool of read rows must say 1, not 1 minus rounding (a reader
+    comparing with 1 would count it as partly recalled)."""
+    for species in ("pig", "rat", "dog", "chicken"):
+        for stage in ("adult", "juvenile"):
+            ps = store.parameter_set(species, life_stage=stage, stage_fallback=True, fill="allometric")
+            for comp, parameter, cell in ps.cells():
+                share = cell.verified_share
+                assert share is None or share == 1.0 or 0 <= share < 1 - 1e-9, (species, stage, comp, parameter, share)
+
+
 def test_a_body_mass_far_outside_the_studied_subjects_is_flagged(store):
     far = store.parameter_set("dog", body_mass="400 kg")
     check = next(c for c in far.checks if c["check"] == "body_mass_within_studied_range")

@@ -88,8 +88,9 @@ def _ok(status, what):
     assert status == libsbml.LIBSBML_OPERATION_SUCCESS, f"{what}: {libsbml.OperationReturnValue_toString(status)}"
 
 
-def build_drug_model(sbml: str, intrinsic_clearance: float, infusion_rate: float):
+def build_drug_model(sbml: str, intrinsic_clearance: float, infusion_rate: float, compound: str | None = None):
     """Add the drug's species, parameters and reactions to the exported model, wired by its annotations.
+    Kp is 1 in every tissue, or with ``compound`` the file's own kp_<compound>_<compartment> parameter.
     Returns the SBML document (checked by libsbml) and the liver and pool ids."""
     doc = libsbml.readSBMLFromString(sbml)
     assert doc.getNumErrors(libsbml.LIBSBML_SEV_ERROR) == 0, doc.getErrorLog().toString()
@@ -146,7 +147,14 @@ def build_drug_model(sbml: str, intrinsic_clearance: float, infusion_rate: float
         species(f"drug_{c}", c)
     species("eliminated", liver, only_amount=True)
     for c in organs:
-        parameter(f"Kp_{c}", 1.0, "dimensionless")
+        if compound is None:
+            parameter(f"Kp_{c}", 1.0, "dimensionless")
+        else:  # the exported partition coefficient, found by its id and checked by its annotation
+            kp = model.getParameter(f"kp_{compound}_{c}")
+            assert kp is not None, f"the file carries no Kp of {compound} for {c}"
+            note = bodyplan_element(kp, "value")
+            assert (note.get("compound"), note.get("compartment"), note.get("form")) == (compound, c, "tissue:blood")
+            parameter(f"Kp_{c}", None, "dimensionless", kp.getId())
 
     def outflow(c):  # own flow plus everything draining into it
         return " + ".join([organs[c]["flow"], *(f"outflow_{s}" for s in organs[c]["receives_from"] if s != pool)])
@@ -210,15 +218,15 @@ def simulation_set(store, species, body_mass, stage, request):
     return ps
 
 
-def simulate_both(ps, times_per_slowest=(0.05, 0.5, 2.0, 40.0)):
+def simulate_both(ps, times_per_slowest=(0.05, 0.5, 2.0, 40.0), compound=None):
     """The SBML run and the numpy run of one set at the same times (multiples of the slowest time
     constant), with CLint equal to the total liver blood flow (extraction ratio 0.5)."""
     sbml = ps.to_sbml()  # refuses a set with gaps (ParameterSetError)
     data = json.loads(ps.to_json())
     q_h = total_liver_flow(data)
-    reference = flow_model.build(data, q_h, INFUSION)
+    reference = flow_model.build(data, q_h, INFUSION, compound)
     times = [f / reference.slowest_rate() for f in times_per_slowest]
-    doc, liver, pool = build_drug_model(sbml, q_h, INFUSION)
+    doc, liver, pool = build_drug_model(sbml, q_h, INFUSION, compound)
     assert consistency_problems(doc) == []
     body, eliminated = reference.amounts(times)
     numpy_run = {"body": body.sum(axis=1), "eliminated": eliminated,
@@ -228,10 +236,10 @@ def simulate_both(ps, times_per_slowest=(0.05, 0.5, 2.0, 40.0)):
 
 
 # ---- end to end -----------------------------------------------------------------------------------
-def assert_simulates(ps):
+def assert_simulates(ps, compound=None):
     """The drug model built from the set's SBML, and the numpy model reading its JSON, keep the mass and
     flow balances, reach infusion rate / clearance, and agree point by point."""
-    sbml_run, numpy_run, times, q_h, reference = simulate_both(ps)
+    sbml_run, numpy_run, times, q_h, reference = simulate_both(ps, compound=compound)
     clearance = q_h * q_h / (q_h + q_h)  # well-stirred, fu = 1, BP = 1, CLint = Q_H
     infused = INFUSION * times
     for name, result in (("SBML", sbml_run), ("numpy", numpy_run)):
@@ -249,6 +257,7 @@ def assert_simulates(ps):
     # the steady state the numpy model solves for directly is the one both runs reach
     steady = reference.steady_state()
     assert steady[0] / reference.volumes[0] == pytest.approx(INFUSION / clearance, rel=1e-9)
+    return sbml_run, reference
 
 
 STRATA_IDS = [f"{s}-{m.replace(' ', '')}-{st}" for s, m, st in STRATA]
@@ -257,6 +266,36 @@ STRATA_IDS = [f"{s}-{m.replace(' ', '')}-{st}" for s, m, st in STRATA]
 @pytest.mark.parametrize("species,body_mass,stage", STRATA, ids=STRATA_IDS)
 def test_flow_limited_model_from_the_sbml_file(real_store, species, body_mass, stage, request):
     assert_simulates(simulation_set(real_store, species, body_mass, stage, request))
+
+
+NEUTRAL = """[[compound]]
+name = "lipophilic_neutral"
+log_p = 3.0
+fu_plasma = 1.0
+blood_plasma_ratio = 1.0
+"""
+
+
+def test_a_set_with_kp_simulates_with_its_kp(real_store, tmp_path):
+    """The Kp a set carries (here a neutral compound, log P 3, composition borrowed where the species has
+    none) reach the SBML file; the drug model built with them keeps its balances, and at steady state each
+    tissue that does not eliminate holds Kp times the arterial concentration (flow-limited distribution:
+    common practice, no source)."""
+    path = tmp_path / "neutral.toml"
+    path.write_text(NEUTRAL)
+    ps = real_store.parameter_set("human", body_mass="73 kg")
+    ps.add_partition_coefficients(real_store, path, method="rodgers_rowland", borrow_from="closest")
+    kp = {r["compartment"]: r["kp_blood"] for r in ps.partition}
+    assert kp["blood"] == 1.0 and len(set(kp.values())) > 3  # blood is the reference; tissues differ
+    sbml_run, reference = assert_simulates(ps, compound="lipophilic_neutral")
+    steady = reference.steady_state() / reference.volumes
+    arterial = steady[0]
+    wiring = {e["compartment"]: e for e in json.loads(ps.to_json())["circulation"]}
+    for i, c in enumerate(reference.names[1:], start=1):
+        if c != "liver" and wiring[c]["receives_from"] == ["blood"] and wiring[c]["flow"] != "cardiac_output":
+            assert steady[i] == pytest.approx(kp[c] * arterial, rel=1e-9), c
+    late = {c: sbml_run["amounts"][f"drug_{c}"][-1] / reference.volumes[i] for i, c in enumerate(reference.names)}
+    assert late["adipose"] / late["blood"] == pytest.approx(kp["adipose"], rel=1e-2)
 
 
 @pytest.mark.parametrize("species,body_mass,stage", STRATA, ids=STRATA_IDS)
