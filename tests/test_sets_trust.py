@@ -193,7 +193,7 @@ def test_partition_coefficients_travel_with_the_set(store, tmp_path):
     ps.add_partition_coefficients(store, compound, borrow_from="human")
     data = json.loads(ps.to_json())
     rows = {r["compartment"]: r for r in data["partition_coefficients"]}
-    assert set(rows) == set(ps.layout.compartments)
+    assert set(rows) == set(ps.compartments)  # the layout and rest_of_body
     liver = rows["liver"]
     assert liver["kp"] > 0 and liver["kp_blood"] == pytest.approx(liver["kp"] / 1.0)
     assert "human" in str(liver["borrowed_from"])
