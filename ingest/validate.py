@@ -159,23 +159,33 @@ def check_sources(tree: CuratedTree, findings: Findings) -> set[str]:
                 findings.error(BIB_FILE, src["line"], required, f"entry {src['key']!r} has no {required}; add it", code="V212")
         keys.add(src["key"])
     check_derived_from(tree.sources, keys, findings)
-    check_one_entry_per_doi(tree.sources, findings)
+    check_one_entry_per_publication(tree.sources, findings)
     return keys
 
 
-def check_one_entry_per_doi(sources: list[dict], findings: Findings) -> None:
-    """One publication is one source: its rows would otherwise count the same animals twice."""
-    first: dict[str, dict] = {}
+def _plain(text: str) -> str:
+    """A title as letters and digits only (BibTeX braces, accents commands, case and spacing aside)."""
+    return re.sub(r"[^a-z0-9]", "", re.sub(r"\\[a-zA-Z]+|\\.", "", text).lower())
+
+
+def check_one_entry_per_publication(sources: list[dict], findings: Findings) -> None:
+    """One publication is one source: its rows would otherwise count the same animals twice. Two entries
+    are one publication when they share a DOI, or a title and year."""
+    first: dict[tuple, dict] = {}
     for src in sources:
-        doi = src["fields"].get("doi", "").strip().lower().removeprefix("https://doi.org/")
-        if not doi:
-            continue
-        if doi in first:
-            findings.error(BIB_FILE, src["line"], "doi", f"entry {src['key']!r} has the DOI of "
-                           f"{first[doi]['key']!r} (line {first[doi]['line']}); one publication is one source: "
-                           "keep one entry and move its rows into that source's values file", code="V242")
-        else:
-            first[doi] = src
+        fields = src["fields"]
+        doi = fields.get("doi", "").strip().lower().removeprefix("https://doi.org/")
+        title = _plain(fields.get("title", ""))
+        for column, key in (("doi", ("doi", doi) if doi else None),
+                            ("title", ("title", title, fields.get("year", "").strip()) if len(title) > 20 else None)):
+            if key is None:
+                continue
+            if key in first and first[key]["key"] != src["key"]:
+                findings.error(BIB_FILE, src["line"], column, f"entry {src['key']!r} has the {column} of "
+                               f"{first[key]['key']!r} (line {first[key]['line']}); one publication is one source: "
+                               "keep one entry and move its rows into that source's values file", code="V242")
+                break
+            first.setdefault(key, src)
 
 
 def check_derived_from(sources: list[dict], keys: set[str], findings: Findings) -> None:
