@@ -44,7 +44,21 @@ def read_baseline(root: Path) -> set[tuple[str, str, str]]:
     if not path.exists():
         return set()
     rows = csv.DictReader(io.StringIO(path.read_text(encoding="utf-8")))
-    return {(r["file"].strip(), r["row_id"].strip(), r["code"].strip()) for r in rows}
+    accepted, problems = set(), []
+    for line, r in enumerate(rows, start=2):
+        cells = [r.get(k) for k in ("file", "row_id", "code")]
+        if None in cells or None in r or not all(c.strip() for c in cells):
+            problems.append(f"{BASELINE_FILE}:{line}: expected file,row_id,code,note (a note with a comma is "
+                            "quoted); fix the line or delete it")
+            continue
+        accepted.add(tuple(c.strip() for c in cells))
+    if problems:
+        raise BaselineError("\n".join(problems))
+    return accepted
+
+
+class BaselineError(BodyplanError, ValueError):
+    """check_baseline.csv cannot be read: every bad line, one per line."""
 
 
 def row_ids(frame) -> dict[tuple[str, int], str]:

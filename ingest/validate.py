@@ -181,7 +181,8 @@ def check_one_entry_per_publication(sources: list[dict], findings: Findings) -> 
             if key is None:
                 continue
             if key in first and first[key]["key"] != src["key"]:
-                findings.error(BIB_FILE, src["line"], column, f"entry {src['key']!r} has the {column} of "
+                findings.error(BIB_FILE, src["line"], column, f"entry {src['key']!r} has the "
+                               f"{'DOI' if column == 'doi' else 'title and year'} of "
                                f"{first[key]['key']!r} (line {first[key]['line']}); one publication is one source: "
                                "keep one entry and move its rows into that source's values file", code="V242")
                 break

@@ -16,6 +16,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from bodyplan.api.locate import bundled_data_dir
+from bodyplan.errors import BodyplanError
 from bodyplan.ingest import build, check
 from bodyplan.ingest.baseline import CheckFilesError, check_files
 from bodyplan.ingest.plausibility import ranges_in_text
@@ -220,6 +221,17 @@ def test_one_publication_is_one_source(tree):
                              "values file", "V242")]
 
 
+def test_one_publication_is_one_source_by_title_and_year(tree):
+    """Without a DOI, the same title (case, braces and spacing aside) in the same year is the same paper."""
+    bib = tree / "sources.bib"
+    bib.write_text(bib.read_text().replace(
+        "title  = {Invented for tests: a second source that does not exist},\n  year   = {2021},",
+        "title  = {{INVENTED} for tests:  a source that does not exist},\n  year   = {2020},"))
+    assert errors(tree) == [("sources.bib:8: title: entry 'testsource2021' has the title and year of "
+                             "'testsource2020' (line 1); one publication is one source: keep one entry and move its "
+                             "rows into that source's values file", "V242")]
+
+
 def test_derived_from_reaches_the_store(tree, tmp_path):
     import sqlite3
 
@@ -403,6 +415,24 @@ def test_baseline_sets_reviewed_warnings_apart(tree):
     (tree / "check_baseline.csv").write_text("file,row_id,code,note\n"
                                              f"{V},a,W308,invented for tests: no longer warned\n")
     assert check_files([tree / V]).stale == [(V, "a", "W308")]
+
+
+def test_a_malformed_baseline_is_one_clean_error_with_every_bad_line(tree):
+    """A merge left half done, or a note with an unquoted comma: each bad line named, nothing crashes."""
+    from bodyplan.cli import main
+
+    (tree / "check_baseline.csv").write_text("file,row_id,code,note\n"
+                                             f"{V},b,W308,invented for tests: fine\n"
+                                             "<<<<<<< HEAD\n"
+                                             f"{V},c,W308,invented, with, commas\n")
+    with pytest.raises(BodyplanError) as exc:
+        check_files([tree / V])
+    assert str(exc.value).splitlines() == [
+        f"check_baseline.csv:{n}: expected file,row_id,code,note (a note with a comma is quoted); fix the line or "
+        "delete it" for n in (3, 4)]
+    with pytest.raises(SystemExit) as exit_:
+        main(["check", str(tree)])
+    assert exit_.value.code == 1
 
 
 def test_check_files_refuses_files_of_two_trees(tree, tmp_path):
