@@ -63,11 +63,17 @@ def _verified_share(rows: list[dict], estimate: Estimate) -> float:
     return float(sum(w for w, r in zip(weights, rows) if r["verified"]) / sum(weights))
 
 
+SPECIES_OUTPUT = "absolute flows over the species' cardiac output at the subjects' body mass"
+
+
 def _one_route_per_source(rows: list[dict], preference: list[str]) -> list[dict]:
-    best: dict[str, int] = {}
+    """Each source's rows of one route: a route that needs nothing but the source's own numbers before one
+    that borrows the species' typical body mass or cardiac output (``_borrows``), then by ``preference``."""
+    rank = lambda r: (bool(r.get("_borrows")), preference.index(r["_route"]))  # noqa: E731
+    best: dict[str, tuple] = {}
     for r in rows:
-        best[r["source_id"]] = min(best.get(r["source_id"], 99), preference.index(r["_route"]))
-    return [r for r in rows if preference.index(r["_route"]) == best[r["source_id"]]]
+        best[r["source_id"]] = min(best.get(r["source_id"], (True, 99)), rank(r))
+    return [r for r in rows if rank(r) == best[r["source_id"]]]
 
 
 def _gap(reason: str) -> Resolved:
@@ -113,21 +119,22 @@ class Resolver:
             else:
                 kept.append(r)
         by_measure: dict[tuple, list[dict]] = defaultdict(list)
-        for r in kept:
-            by_measure[(r["source_id"], r["quantity_id"], r["compartment_id"], r["normalisation"])].append(r)
+        for r in kept:  # one quantity of one compartment, however it is normalised (mL/min or mL/min/kg)
+            by_measure[(r["source_id"], r["quantity_id"], r["compartment_id"])].append(r)
         counted = []
         for (source, *_), same in by_measure.items():
             keep = self._independent_groups(source, {r["group_id"] for r in same})
-            seen: set[str] = set()
-            for r in same:
+            seen: dict[str, str] = {}
+            # of two rows of the same animals, the one that needs no borrowed body mass counts
+            for r in sorted(same, key=lambda r: r["normalisation"] == "none" and r["subject_body_mass_kg"] is None):
                 if r["group_id"] not in keep:
                     self.left_out[(source, r["row_id"])] = (f"group {r['group_id']} overlaps another group of "
                                                             "this source that is counted (groups.csv)")
                 elif r["group_id"] in seen:
                     self.left_out[(source, r["row_id"])] = (f"the same animals (group {r['group_id']}) are "
-                                                            "counted by an earlier row of this source")
+                                                            f"counted by row {seen[r['group_id']]} of this source")
                 else:
-                    seen.add(r["group_id"])
+                    seen[r["group_id"]] = r["row_id"]
                     counted.append(r)
         return counted
 
@@ -303,11 +310,14 @@ class Resolver:
         for quantity in preference:
             by_volume = self._is_volume(quantity)
             for r in self.rows(quantity, compartment):
+                borrows = False
                 if self._share_of.get(quantity) == "body_mass":
                     per = 1.0
                 else:
                     per = 1.0 if r["normalisation"] == "body_mass" else 1.0 / self.subject_mass(r)
-                candidates.append(self._routed(r, quantity, per if by_volume else per / density))
+                    borrows = r["normalisation"] != "body_mass" and r["subject_body_mass_kg"] is None
+                candidates.append(dict(self._routed(r, quantity, per if by_volume else per / density),
+                                       _borrows=borrows))
         if not candidates:
             return self._from_parts(compartment, self.volume_per_kg, "volume, mass or mass fraction")
         rows = [r for r in _one_route_per_source(self._read_first(candidates), preference)
@@ -480,7 +490,8 @@ class Resolver:
                 elif r["normalisation"] == "none":
                     co, how = self._cardiac_output_for(r)
                     if co is not None:
-                        candidates.append(dict(self._routed(r, quantity, 1.0 / co), _over=how))
+                        candidates.append(dict(self._routed(r, quantity, 1.0 / co), _over=how,
+                                               _borrows=how == SPECIES_OUTPUT))
                 elif r["normalisation"] == "tissue_mass":
                     factor, how = self._per_tissue_factor(r, compartment)
                     if factor is not None:
@@ -522,7 +533,7 @@ class Resolver:
         co = self.cardiac_output(mass)
         if not co.ok:
             return None, ""
-        return co.estimate.value, "absolute flows over the species' cardiac output at the subjects' body mass"
+        return co.estimate.value, SPECIES_OUTPUT
 
     # ---- wholes from parts -------------------------------------------------------------------
     @cached_property

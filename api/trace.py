@@ -84,8 +84,28 @@ def trace(store, species: str, quantity: str, compartment: str | None = None, *,
         result.combined.append(combination(place, parameter, unit, resolved))
     used = {(r["source"], r["row_id"]) for c in result.combined for r in c["rows_used"]}
     result.rows["used"] = [(s, r) in used for s, r in zip(result.rows["source"], result.rows["row_id"])]
-    result.rows["left_out"] = [left_out.get((s, r)) for s, r in zip(result.rows["source"], result.rows["row_id"])]
+    used_of = {}
+    for c in result.combined:
+        for r in c["rows_used"]:
+            used_of.setdefault((r["source"], c["compartment"]), r["row_id"])
+
+    def why(source, row, place):
+        if (source, row) in used:
+            return None
+        if (source, row) in left_out:
+            return left_out[(source, row)]
+        if (source, place) in used_of:  # one route per source: the one needing nothing borrowed, then the most direct
+            return f"row {used_of[(source, place)]} of this source is used instead (one route per source)"
+        return UNCONVERTED
+
+    result.rows["left_out"] = [why(s, r, p) for s, r, p in
+                               zip(result.rows["source"], result.rows["row_id"], result.rows["compartment"])]
     return result
+
+
+# A row that counts but that no route could turn into the parameter here.
+UNCONVERTED = ("no route turns it into this parameter here (an absolute number without its subjects' or a "
+               "typical body mass, or a flow without a cardiac output)")
 
 
 def combination(compartment: str, parameter: str, unit: str, resolved) -> dict:

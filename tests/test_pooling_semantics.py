@@ -105,3 +105,54 @@ def test_a_reprint_gives_way_to_its_original(store):
     resolver = Resolver(store, "human")
     reasons = {key: why for key, why in resolver.left_out.items() if key[0] == "poulin2002"}
     assert reasons and all("reprints poulin2000" in why for why in reasons.values())
+
+
+HEADER = ("id,species,life_stage,age,sex,strain,class,group,compartment,quantity,part,method,value,unit,uncertainty,"
+          "spread,low,high,statistic,uncertainty_assumed,n,n_counts,body_mass,denominator,basis,locator,verified,"
+          "missing_reason,comment\n")
+
+
+@pytest.fixture(scope="module")
+def two_ways(store_from_tree, tmp_path_factory):
+    """Invented for tests: one source prints the same animals' numbers twice, absolute and per kg body mass,
+    without their body mass; the species' typical body mass (another source) is 50 kg, theirs 60 kg."""
+    root = tmp_path_factory.mktemp("two_ways")
+    (root / "values").mkdir()
+    note = "invented for tests"
+    rows = {
+        "typical2026": ["bw,sheep,adult,,female,,,all,whole_body,body_mass,,weighing,50,kg,none,,,,mean,no,10,animals,,,"
+                        f"measured,Table 1,yes,,{note}"],
+        "twoways2026": [
+            f"gfr_abs,sheep,adult,,female,,,all,whole_body,gfr,,inulin_clearance,120,mL/min,none,,,,mean,no,6,animals,,,"
+            f"measured,Table 2,yes,,{note}: 60 kg sheep; body mass not printed",
+            f"gfr_kg,sheep,adult,,female,,,all,whole_body,gfr,,inulin_clearance,2,mL/min/kg,none,,,,mean,no,6,animals,,,"
+            f"measured,Table 2,yes,,{note}: the same sheep per kg",
+            f"heart_g,sheep,adult,,female,,,all,heart,tissue_mass,tissue,dissection_weighing,300,g,none,,,,mean,no,6,"
+            f"animals,,,measured,Table 3,yes,,{note}: body mass not printed",
+            f"heart_pc,sheep,adult,,female,,,all,heart,tissue_mass_fraction,tissue,dissection_weighing,0.5,%,none,,,,mean,"
+            f"no,6,animals,,live_body,measured,Table 3,yes,,{note}: the same hearts as % of body mass"]}
+    bib = ""
+    for key, lines in rows.items():
+        (root / "values" / f"{key}.csv").write_text(HEADER + "\n".join(lines) + "\n")
+        bib += f"@misc{{{key},\n  title = {{Invented for tests {key}}},\n  year = {{2026}},\n  note = {{{note}}}\n}}\n\n"
+    (root / "sources.bib").write_text(bib)
+    return store_from_tree(root)
+
+
+def test_the_same_animals_count_once_however_they_are_normalised(two_ways):
+    """GFR printed as mL/min and as mL/min/kg of the same sheep: one row counts, the one that needs no
+    borrowed body mass (per kg: 2 mL/min/kg, not 120 mL/min over the species' 50 kg = 2.4)."""
+    resolved = Resolver(two_ways, "sheep").resolve("gfr")
+    assert [r["row_id"] for r in resolved.rows] == ["gfr_kg"]
+    assert resolved.estimate.value == pytest.approx(2 * 60 / 1000)  # L/h per kg
+    left = dict(zip(*[trace(two_ways, "sheep", "gfr").rows[k] for k in ("row_id", "left_out")]))
+    assert left["gfr_abs"] == "the same animals (group all) are counted by row gfr_kg of this source"
+
+
+def test_a_share_of_body_mass_beats_a_mass_that_borrows_one(two_ways):
+    """300 g hearts without their body mass over the species' 50 kg would say 0.6 %; the source's own
+    0.5 % of the same animals' body mass is used."""
+    resolved = Resolver(two_ways, "sheep").volume_per_kg("heart")
+    assert [r["row_id"] for r in resolved.rows] == ["heart_pc"]
+    density = Resolver(two_ways, "sheep").density("heart")[0]
+    assert resolved.estimate.value * density == pytest.approx(0.005)

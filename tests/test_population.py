@@ -32,6 +32,7 @@ from bodyplan.api.population import (GRID, PopulationError, beta_parameters, log
                                      percentile_interval, population_spec, scipy_distribution)
 from bodyplan.api.population.sample import draw
 from bodyplan.cli import cli
+from bodyplan.schema.model import is_pulmonary
 
 TOY = Path(__file__).parent / "data" / "population_toy"
 Z = 4.0
@@ -187,9 +188,14 @@ def test_species_populations_balance(real_store, species):
     assert_balanced(pop.frame, pop)
     assert len(pop.frame) == 3_000 and pop.frame.notna().all().all()
     filled = pop.sidecar["filled"]
-    if species in ("dog", "pig"):
-        assert filled and all(v["mean_origin"] == "allometric" for v in pop.sidecar["variables"]
-                              if v["column"] in filled)
+    ps = real_store.parameter_set(species, fill="allometric")
+    expected = {("cardiac_output" if c == "whole_body" and p == "cardiac_output" else p if c == "whole_body"
+                 else f"{c}.{p}") for c, p, cell in ps.cells() if cell.origin == "allometric"
+                and not (p == "blood_flow" and is_pulmonary(ps.layout.compartments.get(c, ())))}  # = cardiac output
+    assert set(filled) == expected  # every fill of the set is named in the sidecar, and nothing else
+    assert all(v["mean_origin"] == "allometric" for v in pop.sidecar["variables"] if v["column"] in filled)
+    if species == "pig":  # the adult pig's cardiac output and more are filled across species
+        assert filled
 
 
 def test_second_level_draws_one_mean_per_population(toy_store):
