@@ -16,8 +16,8 @@ from collections import defaultdict
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 
-from ..schema.model import (FLUID_VOLUME, PARAMETERS, PARTS_FOR_THE_WHOLE, REFERENCE_HEIGHT_CM, VESSEL_ORGAN,
-                            body_plan, routes, summable_parts)
+from ..schema.model import (FLUID_VOLUME, PARAMETERS, REFERENCE_HEIGHT_CM, VESSEL_ORGAN,
+                            body_plan, routes, stands_for_the_whole, summable_parts)
 from .pooling import Estimate, pool
 
 ROW_COLUMNS = ("source_id, row_id, compartment_id, quantity_id, normalisation, value_canonical, sd_canonical, "
@@ -139,7 +139,7 @@ class Resolver:
         return counted
 
     def _not_for_pooling(self, r: dict, present: set) -> str:
-        if r["part_id"] not in PARTS_FOR_THE_WHOLE:
+        if not stands_for_the_whole(r["part_id"], r["compartment_id"]):
             return f"part {r['part_id']}: not the whole {r['compartment_id']}"
         if not self.all_methods and r["method_id"] and not self._accepted(r["method_id"], r["quantity_id"]):
             return f"method {r['method_id']} is not accepted for {r['quantity_id']} here (vocab/methods.csv)"
@@ -279,7 +279,15 @@ class Resolver:
         if others:
             est = _pool(others)
             return est.value, f"density {est.value:.3g} kg/L from other species", est.sources
+        whole = self._whole_of.get(compartment)
+        if whole:  # a part (one kidney, the stomach) without a density of its own has its whole's
+            value, how, sources = self.density(whole)
+            return value, f"{how} (of {whole})", sources
         return 1.0, "density 1 kg/L assumed: no density of this tissue in the store", ()
+
+    @cached_property
+    def _whole_of(self) -> dict[str, str]:
+        return {part: whole for whole, parts in self._parts.items() for part in parts}
 
     # ---- the vocabulary: which quantity is a share of what --------------------------------------
     @cached_property
@@ -318,8 +326,10 @@ class Resolver:
                     borrows = r["normalisation"] != "body_mass" and r["subject_body_mass_kg"] is None
                 candidates.append(dict(self._routed(r, quantity, per if by_volume else per / density),
                                        _borrows=borrows))
-        if not candidates:
-            return self._from_parts(compartment, self.volume_per_kg, "volume, mass or mass fraction")
+        if not candidates or not any(r["verified"] for r in candidates):
+            summed = self._from_parts(compartment, self.volume_per_kg, "volume, mass or mass fraction")
+            if not candidates or self._read_parts_win(summed, candidates):
+                return summed
         rows = [r for r in _one_route_per_source(self._read_first(candidates), preference)
                 if not math.isnan(r["_value"])]
         if not rows:
@@ -502,6 +512,10 @@ class Resolver:
                 return _gap(f"{compartment} flows are absolute and {self.species} has no cardiac output "
                             "to turn them into fractions")
             return self._from_parts(compartment, self.flow_fraction, "blood flow")
+        if not any(r["verified"] for r in candidates):
+            summed = self._from_parts(compartment, self.flow_fraction, "blood flow")
+            if self._read_parts_win(summed, candidates):
+                return summed
         rows = _one_route_per_source(self._read_first(candidates), preference)
         notes = sorted({r["_over"] for r in rows if "_over" in r})
         return self._resolved(rows, notes)
@@ -542,6 +556,16 @@ class Resolver:
         for row in self.store.query("SELECT id, part_of FROM compartments WHERE part_of IS NOT NULL ORDER BY id"):
             parts[row["part_of"]].append(row["id"])
         return parts
+
+    def _read_parts_win(self, summed: Resolved, recalled: list[dict]) -> bool:
+        """Read rows beat recalled ones across a whole and its parts too: a whole whose rows are all recalled
+        gives way to the sum of its parts when every part rests on rows read in their source."""
+        if not (summed.ok and summed.verified_share == 1.0):
+            return False
+        for r in recalled:
+            self.left_out[(r["source_id"], r["row_id"])] = ("recalled, not read: the sum of its parts, read in "
+                                                            "their sources, is used")
+        return True
 
     def _from_parts(self, compartment: str, resolve, what: str) -> Resolved:
         """A whole without rows of its own is the sum of its parts, when every part has data."""

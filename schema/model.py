@@ -131,6 +131,12 @@ STAGE_FALLBACK = {"lactating": ("adult", "pregnant"), "laying": ("adult",), "pre
 # Parts (vocab/parts.csv) whose number stands for the whole compartment; contents, an organ with its
 # blood or contents, one side, one half, a segment or one ventricle never do (they are other amounts).
 PARTS_FOR_THE_WHOLE = frozenset({"tissue", "wall", "whole_pair"})
+
+
+def stands_for_the_whole(part: str, compartment: str) -> bool:
+    """Whether a row's number is the whole compartment: a part that stands for it, or one side of a pair
+    stored as that side's own compartment (left_kidney, one_side: the whole left kidney)."""
+    return part in PARTS_FOR_THE_WHOLE or (part == "one_side" and is_side(compartment))
 # Height used to turn a per-m² row of a species whose body surface formula needs one, when the row does
 # not give its subjects' height: ICRP Publication 89 reference adult male, 176 cm (from memory).
 REFERENCE_HEIGHT_CM = {"human": 176.0}

@@ -156,3 +156,16 @@ def test_a_share_of_body_mass_beats_a_mass_that_borrows_one(two_ways):
     assert [r["row_id"] for r in resolved.rows] == ["heart_pc"]
     density = Resolver(two_ways, "sheep").density("heart")[0]
     assert resolved.estimate.value * density == pytest.approx(0.005)
+
+
+def test_read_sides_of_a_pair_beat_a_recalled_whole(store):
+    """The dog's kidney: the store recalls a whole-pair share (a 1993 compilation, from memory) and reads the
+    left and right kidneys of the same 20 kg dogs (sharif2025, 53.97 g and 50.05 g): read rows win, so
+    the pair is the sum of the read sides, and the recalled whole says why it is left out."""
+    resolved = Resolver(store, "dog").volume_per_kg("kidney")
+    assert {r["row_id"] for r in resolved.rows} == {"kidney_l_dog", "kidney_r_dog"}
+    assert resolved.verified_share == 1.0
+    density = Resolver(store, "dog").density("kidney")[0]
+    assert resolved.estimate.value * density == pytest.approx((53.97 + 50.05) / 1000 / 20, rel=1e-9)
+    left = dict(zip(*[trace(store, "dog", "tissue_mass", "kidney").rows[k] for k in ("source", "left_out")]))
+    assert "the sum of its parts, read in their sources, is used" in left["davies1993"]
