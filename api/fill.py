@@ -8,7 +8,7 @@ is log10(value) on log10(body mass); the filled value carries its 95 % predictio
 from __future__ import annotations
 
 from ..schema.model import STAGE_FALLBACK
-from .parameters import Cell
+from .cell import Cell
 
 MIN_SPECIES = 3  # a fit with intervals needs three species of the animal's own class
 MAX_INTERVAL_RATIO = 10.0  # a fill whose 95 % prediction interval spans more than this factor is no use

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-from ..errors import BodyplanError
-
 import json
 import math
 from dataclasses import dataclass, field, replace
@@ -12,16 +10,16 @@ import numpy as np
 import pandas as pd
 
 from .. import CAUTION
-from ..schema.model import (LIVER, PARAMETERS, PORTAL_ORGANS, SHARES_OF_A_WHOLE, VESSELS_OF_LIVER, circulation,
-                            has_own_flow, is_portal, is_pulmonary, parameter_of, slot_id)
+from ..errors import BodyplanError
+from ..schema.model import (LIVER, PARAMETERS, PORTAL_ORGANS, VESSELS_OF_LIVER, circulation, has_own_flow, is_portal,
+                            is_pulmonary, slot_id)
+from .cell import Cell
+from .checks import class_check, close_balances, source_sum_checks, studied_range_check
 from .fallback import fall_back, from_stage, other_stage_rows, point_to_other_stages, stage_order
 from .layouts import REST, Layout, load_layout
 from .pooling import Estimate
-from .resolve import SAME_BODY_WEIGHT, SAME_SUBJECTS, Resolved, Resolver
+from .resolve import SAME_BODY_WEIGHT, Resolved, Resolver
 
-STUDIED_RANGE_MARGIN = 1.5  # a given body mass this far beyond the studied subjects is flagged
-FLOW_TOLERANCE = 0.05  # named systemic flows may exceed cardiac output by 5 % before the set is flagged
-REST_DENSITY = 1.0  # kg/L, stated on the rest_of_body volume wherever it is used
 UNITS = {"SI": {p.id: (p.unit, 1.0) for p in PARAMETERS.values()},
          "clinical": {p.id: p.clinical for p in PARAMETERS.values()}}
 PHYSIOLOGY = ("gfr", "hematocrit")  # whole-body numbers a PBPK model usually needs besides the compartments
@@ -29,61 +27,6 @@ PHYSIOLOGY = ("gfr", "hematocrit")  # whole-body numbers a PBPK model usually ne
 
 class ParameterSetError(BodyplanError, ValueError):
     """A parameter-set request that cannot be answered as asked (unknown option, bad body weight)."""
-
-
-@dataclass
-class Cell:
-    """One number of a parameter set, with how it was obtained (its origin: measured, pooled, scaled,
-    allometric, gap or not_applicable) and the slots whose data it rests on."""
-
-    value: float | None
-    unit: str
-    origin: str
-    sd: float | None = None
-    se: float | None = None
-    low: float | None = None
-    high: float | None = None
-    sources: tuple[str, ...] = ()
-    method: str = ""
-    reason: str = ""  # for gaps
-    depends_on: tuple[str, ...] = ()  # slot ids (schema.model) whose curated data this number uses
-    verified_share: float | None = None  # share of its weight on rows read in their source (None: not from rows)
-    mass: float | None = None  # kg, for volumes: volume × the tissue density used (closes the mass balance)
-    stage: str | None = None  # the life stage whose rows gave a stage-fallback number
-
-    @classmethod
-    def gap(cls, unit: str, reason: str) -> "Cell":
-        return cls(None, unit, "gap", reason=reason)
-
-    def in_units(self, unit: str, factor: float) -> "Cell":
-        mul = lambda x: None if x is None else x * factor  # noqa: E731
-        return replace(self, value=mul(self.value), unit=unit, sd=mul(self.sd), se=mul(self.se), low=mul(self.low),
-                       high=mul(self.high))  # mass stays in kg
-
-    def resting_on(self, *slots: str) -> "Cell":
-        return replace(self, depends_on=tuple(dict.fromkeys(self.depends_on + slots)))
-
-    def as_dict(self) -> dict:
-        out = {"value": _finite(self.value), "unit": self.unit, "sd": _finite(self.sd), "se": _finite(self.se),
-               "origin": self.origin, "verified_share": _finite(self.verified_share), "sources": list(self.sources),
-               "method": self.method}
-        if self.low is not None:
-            out["interval"] = [_finite(self.low), _finite(self.high)]
-            out["interval_kind"] = ("95 % prediction interval" if "prediction interval" in self.method
-                                    else "range of the study values")
-        if self.reason:
-            out["reason"] = self.reason
-        if self.stage:
-            out["from_stage"] = self.stage
-        return out
-
-
-def _finite(x):
-    """Full precision in data formats; NaN (no number) is null. An infinity stays, so strict JSON refuses
-    it loudly rather than printing a silent null."""
-    if x is None or math.isnan(x):
-        return None
-    return float(x)
 
 
 def _origin_for(resolved: Resolved, body_mass: float) -> str:
@@ -389,89 +332,6 @@ def _combined(parts: list[Cell], value: float, method: str) -> Cell:
                 verified_share=_weighted_share(parts))
 
 
-def _close_balances(ps: ParameterSet) -> None:
-    """rest_of_body closes both balances: the body mass left after every named compartment's mass
-    (volume × its tissue density), as a volume at REST_DENSITY; and the cardiac output left after
-    every named systemic flow."""
-    bw, co = ps.body_mass, ps.cardiac_output
-    vols = [ps.volumes[c] for c in ps.layout.compartments]
-    vol_gaps = [c for c in ps.layout.compartments if ps.volumes[c].origin == "gap"]
-    vol_needs = tuple(d for v in vols for d in v.depends_on)
-    if bw.origin == "gap" or vol_gaps:
-        ps.volumes[REST] = Cell.gap("L", "cannot close the mass balance: " +
-                                    (", ".join(vol_gaps) + " lack a volume" if vol_gaps else "no body mass")
-                                    ).resting_on(*vol_needs)
-    else:
-        named_mass = sum(v.mass if v.mass is not None else v.value * REST_DENSITY for v in vols)
-        rest_mass = bw.value - named_mass
-        ps.volumes[REST] = Cell(rest_mass / REST_DENSITY, "L", "scaled", method=(
-            f"body mass minus the named compartments' masses (volume × tissue density), at {REST_DENSITY:g} kg/L"),
-            depends_on=vol_needs, mass=rest_mass)
-        ps.checks.append(_check("masses_within_body_mass", rest_mass >= 0,
-                                f"named compartments {named_mass:.4g} kg (volumes {sum(v.value for v in vols):.4g} L "
-                                f"through their densities) against body mass {bw.value:.4g} kg; rest_of_body "
-                                f"{rest_mass:.4g} kg = {rest_mass / REST_DENSITY:.4g} L at {REST_DENSITY:g} kg/L"))
-    systemic = {c: f for c, f in ps.flows.items() if f.origin != "not_applicable"
-                and not is_pulmonary(ps.layout.compartments.get(c, []))}
-    flow_gaps = [c for c, f in systemic.items() if f.origin == "gap"]
-    flow_needs = tuple(d for f in systemic.values() for d in f.depends_on)
-    if co.origin == "gap" or flow_gaps:
-        ps.flows[REST] = Cell.gap("L/h", "cannot close the flow balance: " +
-                                  (", ".join(flow_gaps) + " lack a flow" if flow_gaps else "no cardiac output")
-                                  ).resting_on(*flow_needs)
-    else:
-        named = sum(f.value for f in systemic.values())
-        rest = co.value - named
-        ps.flows[REST] = Cell(rest, "L/h", "scaled", method="cardiac output minus the named systemic flows",
-                              depends_on=flow_needs)
-        ps.checks.append(_check("systemic_flows_within_cardiac_output", named <= co.value * (1 + FLOW_TOLERANCE),
-                                f"named systemic flows {named:.4g} L/h against cardiac output {co.value:.4g} L/h "
-                                f"(tolerance {FLOW_TOLERANCE:.0%})"))
-        ps.checks.append(_check("rest_of_body_flow_not_negative", rest >= 0,
-                                f"rest_of_body flow {rest:.4g} L/h"))
-
-
-def _check(name: str, ok: bool, detail: str) -> dict:
-    return {"check": name, "status": "pass" if ok else "fail", "detail": detail}
-
-
-def _source_sum_checks(resolver: Resolver, ps: ParameterSet) -> None:
-    """Fractions given by one source (one group of subjects) should not exceed the whole."""
-    comps = ps.layout.members() - {"whole_body"} - {c for c in ps.layout.members() if is_pulmonary([c])}
-    for quantity, limit in SHARES_OF_A_WHOLE.items():
-        groups: dict[tuple, dict[str, float]] = {}
-        for r in resolver.all_rows:
-            if r["quantity_id"] == quantity and r["compartment_id"] in comps:
-                key = tuple(r[k] for k in SAME_SUBJECTS)
-                groups.setdefault(key, {})[r["compartment_id"]] = r["value_canonical"]
-        for (source, *_), by_comp in groups.items():
-            if parameter_of(quantity) == "blood_flow" and LIVER in by_comp:  # total hepatic flow carries the portal organs
-                by_comp = {c: v for c, v in by_comp.items() if c not in PORTAL_ORGANS}
-            total = sum(by_comp.values())
-            if total > limit:
-                ps.checks.append(_check(f"{quantity}_sum_{source}", False,
-                                        f"{source}: {quantity} of {len(by_comp)} compartments sum to "
-                                        f"{total:.3f} (limit {limit:g})"))
-
-
-def _class_check(resolver: Resolver, ps: ParameterSet) -> None:
-    """Say when the rows behind a set mix production classes (broilers with layers, dairy with beef)."""
-    from collections import Counter
-
-    classes = Counter(r["class_id"] or "not stated" for rows in resolver.groups.values() for r in rows)
-    if resolver.animal_class:
-        if classes["not stated"]:
-            detail = f"class {resolver.animal_class} plus rows that name no class ({classes['not stated']})"
-        else:
-            return
-    elif len(set(classes) - {"not stated"}) > 1:
-        counts = ", ".join(f"{c} ({n})" for c, n in sorted(classes.items()))
-        detail = f"rows of {counts} are combined; choose one with the class option"
-    else:
-        return
-    ps.checks.append({"check": "classes_mixed", "status": "warn", "detail": detail})
-
-
 def _from_other_stage(store, species, life_stage, sex, verified_only, animal_class, number) -> Cell | None:
     """The first of the other stages (nearest first) whose rows give ``number(resolver)``, named as a fallback."""
     stages = [r[0] for r in store.query("SELECT DISTINCT life_stage_id FROM curated_values WHERE species_id = ?",
@@ -493,19 +353,6 @@ def _cardiac_output_of(bw: float):
 def _typical_body_mass(resolver) -> Cell | None:
     cell, bw = _body_mass(resolver, None)
     return cell if bw is not None else None
-
-
-def _studied_range_check(resolver: Resolver, ps: ParameterSet) -> None:
-    """A given body mass far outside the subjects behind the set's rows is an extrapolation: say so."""
-    masses = [r["subject_body_mass_kg"] for r in resolver.all_rows if r["subject_body_mass_kg"] is not None]
-    masses += [r["value_canonical"] for r in resolver.rows("body_mass", "whole_body")]
-    if not masses:
-        return
-    low, high, bw = min(masses), max(masses), ps.body_mass.value
-    inside = low / STUDIED_RANGE_MARGIN <= bw <= high * STUDIED_RANGE_MARGIN
-    ps.checks.append({"check": "body_mass_within_studied_range", "status": "pass" if inside else "warn",
-                      "detail": f"body mass {bw:.4g} kg against {low:.4g}–{high:.4g} kg of the subjects behind "
-                                f"this species' rows at this stage (margin ×{STUDIED_RANGE_MARGIN:g})"})
 
 
 def _body_mass_option(body_mass, body_weight):
@@ -596,11 +443,11 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
         from .fill import fill_allometric
 
         fill_allometric(store, ps)
-    _close_balances(ps)
-    _source_sum_checks(resolver, ps)
-    _class_check(resolver, ps)
+    close_balances(ps)
+    source_sum_checks(resolver, ps)
+    class_check(resolver, ps)
     if bw_cell.origin == "given":
-        _studied_range_check(resolver, ps)
+        studied_range_check(resolver, ps)
     for comp, cell in ps.volumes.items():
         if "density 1 kg/L assumed" in cell.method:
             ps.checks.append({"check": f"density_assumed_{comp}", "status": "warn",

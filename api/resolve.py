@@ -17,13 +17,10 @@ from dataclasses import dataclass, field, replace
 from functools import cached_property
 
 from ..schema.model import (FLUID_VOLUME, PARAMETERS, REFERENCE_HEIGHT_CM, VESSEL_ORGAN,
-                            body_plan, routes, stands_for_the_whole, summable_parts)
+                            routes, summable_parts)
 from .pooling import Estimate, pool
+from .rows import SAME_SUBJECTS, CountedRows
 
-ROW_COLUMNS = ("source_id, row_id, compartment_id, quantity_id, normalisation, value_canonical, sd_canonical, "
-               "n, subject_body_mass_kg, sex, strain, age, verified, file, line, group_id, part_id, method_id, "
-               "class_id, denominator")
-SAME_SUBJECTS = ("source_id", "group_id")  # rows of one source describing the same animals
 PER_TISSUE = "blood_flow per kg tissue"  # the route of a flow given per mass of its tissue
 WITHIN_SPECIES_POINTS, WITHIN_SPECIES_SPAN = 3, 2.0  # subjects' masses needed to scale within a species
 SAME_BODY_WEIGHT = 0.02  # relative difference under which rows describe the requested body weight
@@ -80,158 +77,13 @@ def _gap(reason: str) -> Resolved:
     return Resolved(None, reason=reason)
 
 
-class Resolver:
-    """All rows of one species, stage and sex, and the rules turning them into estimates."""
+class Resolver(CountedRows):
+    """The rules turning the rows that count into per-body-mass estimates."""
 
     def __init__(self, store, species: str, life_stage: str = "adult", sex: str | None = None,
                  verified_only: bool = False, animal_class: str | None = None, all_methods: bool = False):
-        self.store, self.species, self.life_stage, self.sex = store, species, life_stage, sex
-        self.animal_class, self.all_methods = animal_class, all_methods
-        self.target_mass: float | None = None  # the set's body mass, for within-species scaling
-        sql = (f"SELECT {ROW_COLUMNS} FROM curated_values WHERE species_id = ? AND life_stage_id = ? "
-               "AND value_canonical IS NOT NULL" + (" AND verified = 1" if verified_only else ""))
-        params = [species, life_stage]
-        if sex:
-            sql += " AND sex IN (?, 'mixed', 'unknown')"
-            params.append(sex)
-        if animal_class:  # rows of that class, and rows that name no class (said on the set)
-            sql += " AND (class_id = ? OR class_id IS NULL)"
-            params.append(animal_class)
-        self.all_rows = [dict(r) for r in store.query(sql + " ORDER BY source_id, line", params)]
-        self.left_out: dict[tuple[str, str], str] = {}  # (source, row id) → why pooling leaves the row out
-        self.groups: dict[tuple[str, str], list[dict]] = defaultdict(list)
-        for r in self._what_counts(self.all_rows):
-            self.groups[(r["quantity_id"], r["compartment_id"])].append(r)
+        super().__init__(store, species, life_stage, sex, verified_only, animal_class, all_methods)
         self._co_cache: dict[float, Resolved] = {}
-
-    # ---- which rows count: parts, methods, reprints, the same animals once -------------------------
-    def _what_counts(self, rows: list[dict]) -> list[dict]:
-        """The rows pooling may use. A part that is not the whole (contents, one side, a segment …), a
-        method not accepted for this animal and quantity, a reprint of a source that is itself here, a
-        group whose animals another row already counts, a fraction of empty body without its source's
-        ratio: each is left out, and ``left_out`` says why (trace shows it)."""
-        kept = []
-        present = {(r["source_id"], r["quantity_id"], r["compartment_id"]) for r in rows}
-        for r in rows:
-            why = self._not_for_pooling(r, present)
-            if why:
-                self.left_out[(r["source_id"], r["row_id"])] = why
-            else:
-                kept.append(r)
-        by_measure: dict[tuple, list[dict]] = defaultdict(list)
-        for r in kept:  # one quantity of one compartment, however it is normalised (mL/min or mL/min/kg)
-            by_measure[(r["source_id"], r["quantity_id"], r["compartment_id"])].append(r)
-        counted = []
-        for (source, *_), same in by_measure.items():
-            keep = self._independent_groups(source, {r["group_id"] for r in same})
-            seen: dict[str, str] = {}
-            # of two rows of the same animals, the one that needs no borrowed body mass counts
-            for r in sorted(same, key=lambda r: r["normalisation"] == "none" and r["subject_body_mass_kg"] is None):
-                if r["group_id"] not in keep:
-                    self.left_out[(source, r["row_id"])] = (f"group {r['group_id']} overlaps another group of "
-                                                            "this source that is counted (groups.csv)")
-                elif r["group_id"] in seen:
-                    self.left_out[(source, r["row_id"])] = (f"the same animals (group {r['group_id']}) are "
-                                                            f"counted by row {seen[r['group_id']]} of this source")
-                else:
-                    seen[r["group_id"]] = r["row_id"]
-                    counted.append(r)
-        return counted
-
-    def _not_for_pooling(self, r: dict, present: set) -> str:
-        if not stands_for_the_whole(r["part_id"], r["compartment_id"]):
-            return f"part {r['part_id']}: not the whole {r['compartment_id']}"
-        if not self.all_methods and r["method_id"] and not self._accepted(r["method_id"], r["quantity_id"]):
-            return f"method {r['method_id']} is not accepted for {r['quantity_id']} here (vocab/methods.csv)"
-        original = self._derived_from.get(r["source_id"])
-        if original and (original, r["quantity_id"], r["compartment_id"]) in present:
-            return f"reprints {original}, which is counted instead"
-        if r["denominator"] != "live_body" and self._body_ratio(r) is None:
-            return f"a share of {r['denominator'].replace('_', ' ')} mass without its source's ratio to live mass"
-        return ""
-
-    @cached_property
-    def _methods(self) -> dict[str, dict]:
-        return {r["id"]: dict(r) for r in self.store.query("SELECT id, accepted, not_accepted_in FROM methods")}
-
-    def _accepted(self, method: str, quantity: str) -> bool:
-        """vocab/methods.csv: ``accepted``, and ``not_accepted_in`` scopes (taxon class or species, with an
-        optional ``:quantity``) where an otherwise accepted method is refused."""
-        m = self._methods.get(method)
-        if m is None:
-            return True
-        if m["accepted"] != "yes":
-            return False
-        for scope in (m["not_accepted_in"] or "").split():
-            who, _, what = scope.partition(":")
-            if who in self.plan | {self.species} and what in ("", quantity):
-                return False
-        return True
-
-    @cached_property
-    def _derived_from(self) -> dict[str, str]:
-        return {r["id"]: r["derived_from"] for r in self.store.query(
-            "SELECT id, derived_from FROM sources WHERE derived_from IS NOT NULL")}
-
-    @cached_property
-    def _relations(self) -> dict[str, list[tuple[str, frozenset[str]]]]:
-        out: dict[str, list] = defaultdict(list)
-        for r in self.store.query("SELECT source_id, group_id, contains FROM groups ORDER BY rowid"):
-            out[r["source_id"]].append((r["group_id"], frozenset(r["contains"].split())))
-        return out
-
-    def _independent_groups(self, source: str, present: set[str]) -> set[str]:
-        """The groups whose animals are counted once: a group present drops its subgroups; among the
-        subgroups of an absent group, one way of splitting it (the first declared with rows)."""
-        relations = self._relations.get(source, [])
-        keep = set(present)
-
-        def below(group: str) -> set[str]:
-            found: set[str] = set()
-            for parent, children in relations:
-                if parent == group:
-                    for child in children:
-                        found |= {child} | below(child)
-            return found
-
-        for group in list(keep):
-            if group in keep:
-                keep -= below(group)
-        chosen: dict[str, frozenset[str]] = {}
-        for parent, children in relations:
-            if parent in keep or not children & keep:
-                continue
-            if parent not in chosen:
-                chosen[parent] = children
-            elif children != chosen[parent]:
-                keep -= children - chosen[parent]
-        return keep
-
-    def _read_first(self, rows: list[dict]) -> list[dict]:
-        """Rows read in their source text stand for a parameter whenever there are any; rows recalled
-        from memory are used only where nothing read exists (and trace says which were set aside)."""
-        read = [r for r in rows if r["verified"]]
-        if not read or len(read) == len(rows):
-            return rows
-        for r in rows:
-            if not r["verified"]:
-                self.left_out[(r["source_id"], r["row_id"])] = "recalled, not read: rows read in their source exist"
-        return read
-
-    def _body_ratio(self, row: dict) -> float | None:
-        """A source's own empty-body (or carcass) to live body mass ratio, for the same animals."""
-        quantity = {"empty_body": "empty_body_mass_fraction", "carcass": "carcass_mass_fraction"}.get(row["denominator"])
-        ratios = [r["value_canonical"] for r in self.all_rows if r["quantity_id"] == quantity
-                  and r["source_id"] == row["source_id"] and r["group_id"] in (row["group_id"], "all")]
-        return ratios[0] if ratios else None
-
-    @cached_property
-    def plan(self) -> frozenset[str]:
-        taxon = self.store.query("SELECT taxon_class FROM species WHERE id = ?", (self.species,))
-        return body_plan(self.species, taxon[0][0] if taxon else "")
-
-    def rows(self, quantity: str, compartment: str) -> list[dict]:
-        return self.groups.get((quantity, compartment), [])
 
     # ---- body weight -------------------------------------------------------------------------
     @cached_property

@@ -8,7 +8,7 @@ from dataclasses import replace
 
 from ...schema.model import is_pulmonary, slot_id
 from ..layouts import REST
-from ..parameters import _close_balances
+from ..checks import close_balances
 from .spec import PopulationError
 
 
@@ -68,5 +68,5 @@ def _one(spec, row, number: int, seed: int):
     ps.volumes.pop(REST, None)
     ps.flows.pop(REST, None)
     ps.checks = [{"check": "drawn_individual", "status": "pass", "detail": tag}]
-    _close_balances(ps)  # the same rule as the population's own rest_of_body
+    close_balances(ps)  # the same rule as the population's own rest_of_body
     return ps

@@ -160,7 +160,7 @@ def _moments(spec, means, bm, drawn) -> np.ndarray:
 
 def _assemble(spec: PopulationSpec, means, bm, drawn, size) -> np.ndarray:
     from ..layouts import REST
-    from ..parameters import REST_DENSITY
+    from ..checks import REST_DENSITY
 
     co_var = next(v for v in spec.variables if v.column == "cardiac_output")
     ratio = bm / spec.body_mass.mean  # cardiac output is drawn at the reference body mass

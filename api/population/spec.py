@@ -19,7 +19,8 @@ from dataclasses import dataclass, field
 from ...errors import BodyplanError
 from ...schema.model import LIVER, PORTAL_ORGANS, VESSELS_OF_LIVER, has_own_flow, is_portal, is_pulmonary, slot_id
 from ..layouts import REST
-from ..parameters import REST_DENSITY, parameter_set
+from ..checks import REST_DENSITY
+from ..parameters import parameter_set
 from ..resolve import Resolver
 
 # 30 % between-animal CV for a volume, flow or rate without any stored SD: common practice, no source.

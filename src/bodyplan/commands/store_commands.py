@@ -51,7 +51,7 @@ def check_cmd(paths, strict):
         root = data_dir_or_bundled(paths[0] if paths else None)
         findings, tree, frame = check(root)
         findings, accepted = split_accepted(findings, frame, root)
-        where, rows = f"{root}: {len(frame)} value rows in {len(tree.file_hashes)} files", len(frame)
+        where = f"{root}: {len(frame)} value rows in {len(tree.file_hashes)} files"
     else:
         result = check_files(paths)
         findings, accepted = result.findings, result.accepted
