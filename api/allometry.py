@@ -185,43 +185,58 @@ def _default_compartment(store, quantity: str) -> str:
 
 def absolute_rows(store, quantity: str, compartment: str, life_stage: str = "adult",
                   taxon_class: str = "mammals") -> tuple["pd.DataFrame", "pd.DataFrame"]:
-    """Every curated row of the quantity turned into its absolute canonical form, and the rows left out."""
+    """Every curated row of the quantity that counts (the parameter sets' own rules: parts that are not
+    the whole, methods not accepted, the same animals twice and shares of empty body or carcass without
+    their source's ratio are left out, with why) turned into its absolute canonical form."""
     import pandas as pd
+
+    from .rows import CountedRows
 
     if taxon_class not in CLASSES:
         raise AllometryError(f"unknown class {taxon_class!r}; use one of {', '.join(CLASSES)}")
     wanted = [quantity] + ([BODY_MASS_SHARES[quantity]] if quantity in BODY_MASS_SHARES else [])
-    sql = ("SELECT v.species_id AS species, v.quantity_id AS quantity, v.normalisation, v.value_canonical, "
-           "v.unit_canonical, v.subject_body_mass_kg, v.source_id AS source, v.row_id, v.verified, s.taxon_class "
-           "FROM curated_values v JOIN species s ON s.id = v.species_id "
-           f"WHERE v.quantity_id IN ({', '.join('?' for _ in wanted)}) AND v.compartment_id = ? "
-           "AND v.life_stage_id = ? AND v.value_canonical IS NOT NULL")
+    sql = "SELECT DISTINCT v.species_id, s.taxon_class FROM curated_values v JOIN species s ON s.id = v.species_id " \
+          f"WHERE v.quantity_id IN ({', '.join('?' for _ in wanted)}) AND v.compartment_id = ? AND v.life_stage_id = ?"
     params = [*wanted, compartment, life_stage]
     if CLASSES[taxon_class]:
         sql += " AND s.taxon_class = ?"
         params.append(CLASSES[taxon_class])
-    rows = store.frame(sql + " ORDER BY v.species_id, v.source_id, v.row_id", params)
-    masses = {sp: species_body_mass(store, sp, life_stage) for sp in rows["species"].unique()}
+    columns = ["species", "quantity", "normalisation", "value_canonical", "subject_body_mass_kg", "source", "row_id",
+               "verified", "taxon_class", "part", "denominator"]
     kept, skipped = [], []
-    for row in rows.itertuples(index=False):
-        typical, typical_note = masses[row.species]
-        if pd.notna(row.subject_body_mass_kg):
-            mass, mass_from = float(row.subject_body_mass_kg), "subjects' body mass on the row"
-        elif typical is not None:
-            mass, mass_from = typical, f"species' typical body mass ({typical_note})"
-        else:
-            skipped.append({**row._asdict(), "reason": f"no body mass stored for {row.species} ({life_stage})"})
-            continue
-        relative = row.quantity != quantity or row.normalisation == "body_mass"
-        if row.normalisation in ("body_surface", "tissue_mass"):
-            skipped.append({**row._asdict(), "reason": f"per {row.normalisation.replace('_', ' ')}: needs a "
-                            f"{'body surface area' if row.normalisation == 'body_surface' else 'tissue mass'} "
-                            "of the same subjects to become absolute"})
-            continue
-        value = row.value_canonical * mass if relative else row.value_canonical
-        kept.append({**row._asdict(), "absolute": value, "body_mass_kg": mass, "body_mass_from": mass_from,
-                     "converted": f"× {mass:.4g} kg body mass" if relative else ""})
-    columns = list(rows.columns)
+    for species, taxon in store.query(sql + " ORDER BY 1", params):
+        counted = CountedRows(store, species, life_stage, all_methods=False)
+        typical, typical_note = species_body_mass(store, species, life_stage)
+
+        def described(r):
+            return {"species": species, "quantity": r["quantity_id"], "normalisation": r["normalisation"],
+                    "value_canonical": r["value_canonical"], "subject_body_mass_kg": r["subject_body_mass_kg"],
+                    "source": r["source_id"], "row_id": r["row_id"], "verified": r["verified"], "taxon_class": taxon,
+                    "part": r["part_id"], "denominator": r["denominator"]}
+
+        for r in counted.all_rows:
+            why = counted.left_out.get((r["source_id"], r["row_id"]))
+            if why and r["quantity_id"] in wanted and r["compartment_id"] == compartment:
+                skipped.append({**described(r), "reason": why})
+        for r in (r for q in wanted for r in counted.rows(q, compartment)):
+            if r["subject_body_mass_kg"] is not None:
+                mass, mass_from = float(r["subject_body_mass_kg"]), "subjects' body mass on the row"
+            elif typical is not None:
+                mass, mass_from = typical, f"species' typical body mass ({typical_note})"
+            else:
+                skipped.append({**described(r), "reason": f"no body mass stored for {species} ({life_stage})"})
+                continue
+            if r["normalisation"] in ("body_surface", "tissue_mass"):
+                skipped.append({**described(r), "reason": f"per {r['normalisation'].replace('_', ' ')}: needs a "
+                                f"{'body surface area' if r['normalisation'] == 'body_surface' else 'tissue mass'} "
+                                "of the same subjects to become absolute"})
+                continue
+            relative = r["quantity_id"] != quantity or r["normalisation"] == "body_mass"
+            ratio = 1.0 if r["denominator"] == "live_body" else counted._body_ratio(r)  # a share of empty body
+            value = r["value_canonical"] * ratio * mass if relative else r["value_canonical"]
+            kept.append({**described(r), "absolute": value, "body_mass_kg": mass, "body_mass_from": mass_from,
+                         "converted": (f"× {mass:.4g} kg body mass" + (f" × {ratio:.4g} ({r['denominator']} to live)"
+                                                                      if ratio != 1.0 else "")) if relative else ""})
     return (pd.DataFrame(kept, columns=columns + ["absolute", "body_mass_kg", "body_mass_from", "converted"]),
             pd.DataFrame(skipped, columns=columns + ["reason"]))
 

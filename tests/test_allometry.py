@@ -243,3 +243,15 @@ def test_brain_mass_exponent_below_one(real_store):
     fit = _fit_or_skip(real_store, "tissue_mass", "brain").fit
     assert fit.b_ci[0] <= 0.7 <= fit.b_ci[1], (fit.b, fit.b_ci, fit.labels)
     assert fit.b_ci[1] < 1.0, (fit.b, fit.b_ci, fit.labels)
+
+
+def test_pieces_and_carcass_shares_follow_the_sets_rules(real_store):
+    """Carcass bone of goats (luo2000: head and feet removed, a share of the carcass) is a piece of the
+    skeleton: the fit leaves it out and says so, as parameter sets do, instead of multiplying a share
+    of the carcass by live body mass."""
+    from bodyplan.api.allometry import absolute_rows
+
+    kept, skipped = absolute_rows(real_store, "tissue_mass", "bone", "juvenile", "mammals")
+    goat = skipped[skipped["source"] == "luo2000"]
+    assert len(goat) >= 2 and all(goat["reason"].str.startswith("part segment: not the whole bone"))
+    assert "luo2000" not in set(kept["source"])
