@@ -60,7 +60,8 @@ def _verified_share(rows: list[dict], estimate: Estimate) -> float:
     return float(sum(w for w, r in zip(weights, rows) if r["verified"]) / sum(weights))
 
 
-SPECIES_OUTPUT = "absolute flows over the species' cardiac output at the subjects' body mass"
+SPECIES_OUTPUT = "flows over the species' cardiac output at the subjects' body mass"
+OWN_OUTPUT = "flows over their own source's cardiac output (the same subjects)"
 
 
 def _one_route_per_source(rows: list[dict], preference: list[str]) -> list[dict]:
@@ -195,8 +196,7 @@ class Resolver(CountedRows):
         return resolved
 
     def _routed(self, row: dict, route: str, factor: float) -> dict:
-        if row["denominator"] != "live_body":  # a share of empty body mass × the source's empty/live ratio
-            factor *= self._body_ratio(row)
+        factor *= self._body_ratio(row)  # a share of empty body mass × the source's empty/live ratio
         return dict(row, _route=route, _value=row["value_canonical"] * factor,
                     _sd=None if row["sd_canonical"] is None else row["sd_canonical"] * factor)
 
@@ -339,17 +339,17 @@ class Resolver(CountedRows):
 
     # ---- blood flows -------------------------------------------------------------------------
     def flow_fraction(self, compartment: str) -> Resolved:
-        """Blood flow of one stored compartment as a fraction of cardiac output. An absolute flow is
-        divided by the cardiac output of the same source and subjects when the source gives one, else
-        by the species' cardiac output at the subjects' body mass; a flow per kg of tissue is first
-        multiplied by the species' mass of that tissue (each said on the row)."""
+        """Blood flow of one stored compartment as a fraction of cardiac output. An absolute flow, or one per
+        kg body mass, is divided by the cardiac output of the same source and subjects when the source
+        gives one, else by the species' cardiac output at the subjects' body mass; a flow per kg of tissue
+        is first multiplied by the species' mass of that tissue (each said on the row)."""
         preference = [*routes("blood_flow"), PER_TISSUE]
         candidates = []
         for quantity in routes("blood_flow"):
             for r in self.rows(quantity, compartment):
                 if self._share_of.get(quantity) == "cardiac_output":
                     candidates.append(self._routed(r, quantity, 1.0))
-                elif r["normalisation"] == "none":
+                elif r["normalisation"] in ("none", "body_mass"):  # absolute, or per kg body mass
                     co, how = self._cardiac_output_for(r)
                     if co is not None:
                         candidates.append(dict(self._routed(r, quantity, 1.0 / co), _over=how,
@@ -359,7 +359,7 @@ class Resolver(CountedRows):
                     if factor is not None:
                         candidates.append(dict(self._routed(r, PER_TISSUE, factor), _over=how))
         if not candidates:
-            if any(r["normalisation"] == "none" for q in preference if self._share_of.get(q) is None
+            if any(r["normalisation"] in ("none", "body_mass") for q in preference if self._share_of.get(q) is None
                    for r in self.rows(q, compartment)):
                 return _gap(f"{compartment} flows are absolute and {self.species} has no cardiac output "
                             "to turn them into fractions")
@@ -388,18 +388,27 @@ class Resolver(CountedRows):
             f"flows per kg of tissue × the species' {organ} mass over its cardiac output at the subjects' body mass")
 
     def _cardiac_output_for(self, row: dict) -> tuple[float | None, str]:
-        """The cardiac output (L/h) an absolute flow row is a share of."""
-        own = [r for r in self.rows("cardiac_output", "whole_body")
-               if r["normalisation"] == "none" and all(r[k] == row[k] for k in SAME_SUBJECTS)]
+        """The cardiac output a flow row is a share of, in the row's own form (L/h, or L/h per kg body
+        mass): that of the same source and subjects when the source gives one, else the species' at the
+        subjects' body mass."""
+        per_kg, mass = row["normalisation"] == "body_mass", row["subject_body_mass_kg"]
+        own = []
+        for r in self.rows("cardiac_output", "whole_body"):
+            if not all(r[k] == row[k] for k in SAME_SUBJECTS) or r["normalisation"] not in ("none", "body_mass"):
+                continue
+            if r["normalisation"] == row["normalisation"]:
+                own.append(r["value_canonical"])
+            elif mass is not None:  # the other form, through the subjects' own body mass
+                own.append(r["value_canonical"] / mass if per_kg else r["value_canonical"] * mass)
         if own:
-            return sum(r["value_canonical"] for r in own) / len(own), "absolute flows over their own source's cardiac output"
+            return sum(own) / len(own), OWN_OUTPUT
         mass = self.subject_mass(row)
         if math.isnan(mass):
             return None, ""
         co = self.cardiac_output(mass)
         if not co.ok:
             return None, ""
-        return co.estimate.value, SPECIES_OUTPUT
+        return (co.estimate.value / mass if per_kg else co.estimate.value), SPECIES_OUTPUT
 
     # ---- wholes from parts -------------------------------------------------------------------
     @cached_property

@@ -12,6 +12,7 @@ from __future__ import annotations
 from collections import defaultdict
 from functools import cached_property
 
+from ..schema.descriptors import DENOMINATORS
 from ..schema.model import body_plan, stands_for_the_whole
 
 ROW_COLUMNS = ("source_id, row_id, compartment_id, quantity_id, normalisation, value_canonical, sd_canonical, "
@@ -85,7 +86,7 @@ class CountedRows:
         original = self._derived_from.get(r["source_id"])
         if original and (original, r["quantity_id"], r["compartment_id"]) in present:
             return f"reprints {original}, which is counted instead"
-        if r["denominator"] != "live_body" and self._body_ratio(r) is None:
+        if self._body_ratio(r) is None:
             return f"a share of {r['denominator'].replace('_', ' ')} mass without its source's ratio to live mass"
         return ""
 
@@ -158,8 +159,12 @@ class CountedRows:
         return read
 
     def _body_ratio(self, row: dict) -> float | None:
-        """A source's own empty-body (or carcass) to live body mass ratio, for the same animals."""
-        quantity = {"empty_body": "empty_body_mass_fraction", "carcass": "carcass_mass_fraction"}.get(row["denominator"])
+        """What turns the row's share or per-kg value into one of live body mass: 1 for live body (and for a
+        flow per kg of its tissue, which is converted elsewhere); for empty body or carcass the source's
+        own ratio to live body mass, for the same animals (None without one)."""
+        quantity = DENOMINATORS.get(row["denominator"])
+        if quantity is None:
+            return 1.0
         ratios = [r["value_canonical"] for r in self.all_rows if r["quantity_id"] == quantity
                   and r["source_id"] == row["source_id"] and r["group_id"] in (row["group_id"], "all")]
         return ratios[0] if ratios else None

@@ -372,11 +372,17 @@ def check_semantics(frame: pd.DataFrame, tree: CuratedTree, findings: Findings, 
     if quantities is not None:
         info = quantities.set_index("id")
         of_body = set(info.index[(info["fraction_of"] == "body_mass")])
-        per_body = set(info.index[info["per"].str.split().apply(lambda p: "body_mass" in p)])
-        denominated = frame["_denominator"] != "live_body"
+        per = info["per"].fillna("").str.split()
+        per_tissue = set(info.index[per.apply(lambda p: "tissue_mass" in p)])
+        per_body = set(info.index[per.apply(lambda p: "body_mass" in p)]) | per_tissue  # a flow per kg body mass
+        tissue = frame["_denominator"] == "tissue"
+        denominated = (frame["_denominator"] != "live_body") & ~tissue
         fits = frame["quantity"].isin(of_body) | frame["quantity"].isin(per_body)
         _report(frame, denominated & ~fits, "denominator",
                 lambda v: f"{v!r} is only for fractions of body mass or per-kg-body-mass values; clear it",
+                findings, skip, code="V228")
+        _report(frame, tissue & ~frame["quantity"].isin(per_tissue), "denominator",
+                lambda v: f"{v!r} is only for a blood flow per kg of its tissue; clear it",
                 findings, skip, code="V228")
     kind = frame["uncertainty"]
     _report(frame, (frame["_uncertainty_assumed"] == "yes") & ~kind.isin(["sd", "se"]), "uncertainty_assumed",
@@ -409,6 +415,14 @@ def attach_conversion(frame: pd.DataFrame, tree: CuratedTree, findings: Findings
         canonical[index] = form.canonical_unit
         normalisation[index] = form.normalisation
         kind[index] = info["kind"]
+        if form.normalisation == "tissue_mass":  # per kg of its tissue, or per kg of body mass: the row says
+            said = frame["denominator"].str.strip().to_numpy()[index]
+            normalisation[index[said != "tissue"]] = "body_mass"
+            canonical[index[said != "tissue"]] = form.canonical_unit  # the same unit, per kg body mass
+            _report(frame.iloc[index], said == "", "denominator",
+                    "is empty, but a blood flow per mass must say per which mass: tissue (per kg of the "
+                    "compartment's own tissue, e.g. mL/min/100 g) or live_body (per kg of body mass)",
+                    findings, skip, code="V243")
     with np.errstate(over="ignore"):  # a number that overflows in the canonical unit is reported (V226)
         return frame.assign(
             _factor=factor, _unit_canonical=canonical, _normalisation=normalisation, _kind=kind,

@@ -22,7 +22,8 @@ SCOPE = r"[a-z_]+(:[a-z_]+)?"  # where a method is refused: a taxon class or spe
 
 # Which body mass a fraction or per-kg value is taken of, and the quantity holding the source's own
 # ratio of that mass to live body mass (needed to convert the row to live body mass).
-DENOMINATORS = {"live_body": None, "empty_body": "empty_body_mass_fraction", "carcass": "carcass_mass_fraction"}
+DENOMINATORS = {"live_body": None, "empty_body": "empty_body_mass_fraction", "carcass": "carcass_mass_fraction",
+                "tissue": None}  # which mass a share or a per-mass value is of; tissue: the compartment's own
 STATISTICS = ["mean", "median", "geometric_mean", "single_animal", "reference_midpoint", "mode"]
 N_COUNTS = ["animals", "pens", "studies", "organs", "eggs"]
 
@@ -91,8 +92,10 @@ VALUES = {
               default="animals"),
         field("body_mass", description="Subjects' mean body mass with a unit, e.g. '0.25 kg'.",
               pattern=QUANTITY_TEXT),
-        field("denominator", description="For fractions of body mass and per-kg values: live_body, empty_body "
-              "(live minus gut contents) or carcass.", enum=list(DENOMINATORS), default="live_body"),
+        field("denominator", description="For fractions of body mass and per-kg values, which mass: live_body, "
+              "empty_body (live minus gut contents) or carcass; for a blood flow per mass, tissue (per kg of the "
+              "compartment's own tissue, e.g. mL/min/100 g) or live_body (per kg of body mass), always stated.",
+              enum=list(DENOMINATORS), default="live_body"),
         field("basis", description="measured, derived, estimated or reference.", required=True, enum=BASES),
         field("locator", description="Where in the source: table, page or figure.", required=True),
         field("verified", description="yes if the number was read in the source text, else no.",

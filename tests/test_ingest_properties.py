@@ -111,9 +111,12 @@ def test_round_trip_through_the_store(picks):
     rows = []
     for i, ((quantity, unit), value) in enumerate(picks):
         # fractions stay within 0..1 whatever the unit; other values may be larger
+        q = quantities[quantity]
+        per_tissue = conversion(unit, q["canonical_unit"], q["per"])[0].normalisation == "tissue_mass"
         rows.append({**template, "id": f"r{i}", "quantity": quantity, "unit": unit,
                      "compartment": COMPARTMENT.get(quantity, "liver"), "value": repr(value),
-                     "uncertainty": "none", "spread": "", "n": "", "comment": "invented for tests"})
+                     "uncertainty": "none", "spread": "", "n": "", "comment": "invented for tests",
+                     "denominator": "tissue" if per_tissue else template.get("denominator", "")})
     with Tree() as tree:
         write_rows(tree.root / VALUES, rows)
         result = build(tree.root, tree.store)

@@ -127,6 +127,41 @@ def test_denominator_only_for_body_mass_fractions(tree):
                              "per-kg-body-mass values; clear it", "V228")]
 
 
+def test_a_flow_per_mass_says_per_which_mass(tree):
+    """mL/min/100 g is per organ tissue by custom, mL/min/kg often per body mass: the row must say which."""
+    silent = add(tree, V, id="f1", compartment="kidney", quantity="blood_flow", value="400", unit="mL/min/(100 g)")
+    add(tree, V, id="f2", compartment="kidney", quantity="blood_flow", value="400", unit="mL/min/(100 g)",
+        denominator="tissue")
+    add(tree, V, id="f3", compartment="portal_vein", quantity="blood_flow", value="34", unit="mL/min/kg",
+        denominator="live_body")
+    wrong = add(tree, V, id="c1", compartment="whole_body", quantity="cardiac_output", value="120",
+                unit="mL/min/kg", denominator="tissue")
+    assert errors(tree) == [
+        (f"{V}:{silent}: denominator: is empty, but a blood flow per mass must say per which mass: tissue (per kg "
+         "of the compartment's own tissue, e.g. mL/min/100 g) or live_body (per kg of body mass)", "V243"),
+        (f"{V}:{wrong}: denominator: 'tissue' is only for a blood flow per kg of its tissue; clear it", "V228")]
+
+
+def test_a_flow_per_kg_body_mass_is_a_share_of_its_own_cardiac_output(tree, tmp_path):
+    """Portal flow 34.5 mL/min per kg body mass with the same animals' cardiac output 138 mL/min/kg:
+    a quarter of the cardiac output, however heavy the animals were (invented for tests)."""
+    from bodyplan import open_store
+    from bodyplan.api.resolve import Resolver
+
+    add(tree, V, id="bw", compartment="whole_body", quantity="body_mass", value="40", unit="kg", species="pig")
+    add(tree, V, id="pv", compartment="portal_vein", quantity="blood_flow", value="34.5", unit="mL/min/kg",
+        denominator="live_body", species="pig", group="pigs")
+    add(tree, V, id="co", compartment="whole_body", quantity="cardiac_output", value="138", unit="mL/min/kg",
+        species="pig", group="pigs")
+    add(tree, V, id="kf", compartment="kidney", quantity="blood_flow", value="400", unit="mL/min/(100 g)",
+        denominator="tissue", species="pig", group="pigs")
+    build(tree, tmp_path / "s.sqlite")
+    resolver = Resolver(open_store(tmp_path / "s.sqlite"), "pig")
+    portal = resolver.flow_fraction("portal_vein")
+    assert portal.estimate.value == pytest.approx(0.25) and "own source's cardiac output" in portal.notes[0]
+    assert resolver.rows("blood_flow", "kidney")[0]["normalisation"] == "tissue_mass"
+
+
 def test_assumed_uncertainty_needs_sd_or_se(tree):
     line = add(tree, V, id="x", compartment="liver", quantity="tissue_mass", value="0.3", unit="kg",
                uncertainty_assumed="yes")
