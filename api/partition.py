@@ -50,31 +50,35 @@ class Item:
     verified: bool = True      # every row behind it was read in its source
 
 
-def _combine(rows: pd.DataFrame, species: str) -> Item:
-    values = rows["value_canonical"].astype(float)
-    ids = tuple(f"{s}:{r}" for s, r in zip(rows["source"], rows["row_id"]))
-    sources = tuple(dict.fromkeys(rows["source"]))
+def _combine(rows: list[dict], species: str) -> Item:
+    values = np.array([r["value_canonical"] for r in rows], dtype=float)
+    ids = tuple(f"{r['source_id']}:{r['row_id']}" for r in rows)
+    sources = tuple(dict.fromkeys(r["source_id"] for r in rows))
     if len(rows) == 1:
         how = "1 row"
-    elif np.allclose(values, values.iloc[0], rtol=1e-9, atol=0):
+    elif np.allclose(values, values[0], rtol=1e-9, atol=0):
         how = f"{len(rows)} rows agree"  # the same number printed in several sources
     else:
         how = f"mean of {len(rows)} differing rows"
-    return Item(float(values.mean()), species, ids, sources, how, bool(rows["verified"].all()))
+    return Item(float(values.mean()), species, ids, sources, how, all(bool(r["verified"]) for r in rows))
 
 
 def species_composition(store, species: str, life_stage: str = "adult") -> dict[tuple[str, str], Item]:
-    """(compartment, role) → Item for one species and life stage.
+    """(compartment, role) → Item for one species and life stage, from the rows that count by the
+    parameter sets' own rules (a segment is not the whole tissue, the same animals count once, rows
+    read in their source beat recalled ones).
 
     Total water, when not stored, is the sum of extracellular and intracellular water (parts
     are added).
     """
-    rows = store.values(species=species, life_stage=life_stage, quantity=list(ROLES.values()))
-    rows = rows[rows["value_canonical"].notna()]
+    from .rows import CountedRows
+
+    counted = CountedRows(store, species, life_stage)
     by_quantity = {q: r for r, q in ROLES.items()}
     out: dict[tuple[str, str], Item] = {}
-    for (comp, quantity), group in rows.groupby(["compartment", "quantity"], sort=True):
-        out[(comp, by_quantity[quantity])] = _combine(group, species)
+    for (quantity, comp), rows in sorted(counted.groups.items(), key=lambda kv: (kv[0][1], kv[0][0])):
+        if quantity in by_quantity and rows:
+            out[(comp, by_quantity[quantity])] = _combine(counted._read_first(rows), species)
     for comp in {c for c, _ in out}:
         ew, iw = out.get((comp, "extracellular_water")), out.get((comp, "intracellular_water"))
         if (comp, "water") not in out and ew and iw:
@@ -84,12 +88,14 @@ def species_composition(store, species: str, life_stage: str = "adult") -> dict[
     return out
 
 
-def composition_tissues(store) -> list[str]:
-    """Tissues for which any species in the store has a composition row."""
-    marks = ", ".join("?" for _ in ROLES)
-    found = store.query(f"SELECT DISTINCT compartment_id FROM curated_values WHERE quantity_id IN ({marks}) "
-                        "AND value_canonical IS NOT NULL ORDER BY compartment_id", tuple(ROLES.values()))
-    return [r[0] for r in found if r[0] not in NOT_TISSUES]
+def listed_tissues(own: dict, donors: list[tuple[str, dict]]) -> list[str]:
+    """The tissues a Kp table lists: those of the whole-body layout (what a model needs, gaps included),
+    and any other the species or its donors describe."""
+    from .layouts import load_layout
+
+    needed = {part for parts in load_layout("whole_body").compartments.values() for part in parts}
+    found = {c for c, _ in own} | {c for _, comp in donors for c, _ in comp}
+    return sorted((needed | found) - NOT_TISSUES)
 
 
 def composition_coverage(store, species=None, life_stage: str = "adult") -> pd.DataFrame:
@@ -295,7 +301,7 @@ def partition_coefficients(store, species: str, compounds, *, method: str = "rod
     own = species_composition(store, species, life_stage)
     donor_ids = _donors(store, species, borrow_from)
     donors = [(d, species_composition(store, d, life_stage)) for d in donor_ids]
-    tissue_ids = tissues or composition_tissues(store)
+    tissue_ids = tissues or listed_tissues(own, donors)
     tparts = [_pick(own, donors, t, needs["tissue"]) for t in tissue_ids]
     plasma = _pick(own, donors, PLASMA, needs["plasma"]) if "plasma" in needs else Part({})
     rbc = _pick(own, donors, RBC, needs["rbc"]) if "rbc" in needs else Part({})

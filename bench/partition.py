@@ -45,7 +45,7 @@ def main() -> None:
     from bodyplan.api import kp_methods as km
     from bodyplan.api.compound import Compound, Compounds
     from bodyplan.api.locate import bundled_data_dir
-    from bodyplan.api.partition import composition_tissues
+    from bodyplan.api.partition import listed_tissues, species_composition
     from bodyplan.ingest import build
 
     store_path = Path(args.store) if args.store else Path(tempfile.mkdtemp()) / "store.sqlite"
@@ -62,7 +62,7 @@ def main() -> None:
                           pka_base=(float(rng.uniform(2, 6.5)),) if k == 2 else ())
                  for i, k in enumerate(kinds)]
     c = Compounds.of(compounds)
-    tissues = composition_tissues(store)
+    tissues = listed_tissues(species_composition(store, "rat"), [])
     m = len(tissues)
 
     # (1) the equations alone, on composition arrays shaped like the store's
