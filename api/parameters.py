@@ -11,8 +11,8 @@ import pandas as pd
 
 from .. import CAUTION
 from ..errors import BodyplanError
-from ..schema.model import (LIVER, PARAMETERS, PORTAL_ORGANS, VESSELS_OF_LIVER, circulation, has_own_flow, is_portal,
-                            is_pulmonary, slot_id)
+from ..schema.model import (LIVER, PARAMETERS, PORTAL_ORGANS, VESSELS_OF_LIVER, circulation, default_layout,
+                            has_own_flow, is_portal, is_pulmonary, slot_id)
 from .cell import Cell
 from .checks import class_check, close_balances, source_sum_checks, studied_range_check
 from .fallback import fall_back, from_stage, other_stage_rows, point_to_other_stages, stage_order
@@ -367,10 +367,10 @@ def _body_mass_option(body_mass, body_weight):
 
 
 def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | None = None, body_mass=None,
-                  layout="whole_body", fill: str = "none", units: str = "SI", stage_fallback: bool = False,
+                  layout=None, fill: str = "none", units: str = "SI", stage_fallback: bool = False,
                   verified_only: bool = False, animal_class: str | None = None, body_weight=None) -> ParameterSet:
     """A layout's volumes and flows at one body mass (the species' typical one if not given), every gap
-    marked. ``fill="allometric"`` fills gaps across species; ``stage_fallback`` fills them from the
+    marked. The layout is whole_body (fish: fish) unless one is given. ``fill="allometric"`` fills gaps across species; ``stage_fallback`` fills them from the
     species' rows at other life stages (named on each value); ``verified_only`` uses only rows read in
     their source text; ``animal_class`` (vocab/classes.csv: broiler, dairy, minipig …) keeps rows of that
     class and rows that name none; ``units`` is "SI" or "clinical"."""
@@ -383,6 +383,8 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
         raise ParameterSetError(f"sex must be male or female (or omitted), not {sex!r}")
     store.require("species", species, "species")
     store.require("life_stages", life_stage, "life stage")
+    if layout is None:
+        layout = default_layout(store.query("SELECT taxon_class FROM species WHERE id = ?", (species,))[0][0])
     lay = layout if isinstance(layout, Layout) else load_layout(layout, set(store.ids("compartments")))
     if animal_class is not None and not store.query("SELECT 1 FROM classes WHERE species = ? AND id = ?",
                                                      (species, animal_class)):

@@ -22,8 +22,15 @@ from dataclasses import dataclass
 # already carries their flows.
 PORTAL_ORGANS = frozenset({"gut", "spleen", "pancreas", "stomach", "small_intestine", "large_intestine"})
 LIVER = "liver"
-# Organs that the whole cardiac output passes through (lungs: between venous and arterial blood).
-PULMONARY = frozenset({"lung"})
+# Organs that the whole cardiac output passes through between venous and arterial blood: the lungs, or a
+# fish's gills (the heart pumps venous blood through them before it reaches the body).
+PULMONARY = frozenset({"lung", "gills"})
+# The layout a parameter set uses unless one is asked for, by taxon class: fish breathe with gills.
+DEFAULT_LAYOUT = {"fish": "fish"}
+
+
+def default_layout(taxon_class: str) -> str:
+    return DEFAULT_LAYOUT.get(taxon_class, "whole_body")
 # Fluid compartments: their volume is a quantity of its own, not a mass over a density, and they
 # have no blood flow of their own (blood carries the cardiac output).
 FLUID_VOLUME = {"blood": "blood_volume", "plasma": "plasma_volume"}

@@ -268,6 +268,21 @@ def test_flow_limited_model_from_the_sbml_file(real_store, species, body_mass, s
     assert_simulates(simulation_set(real_store, species, body_mass, stage, request))
 
 
+FISH = Path(__file__).parent / "data" / "fish_toy"
+
+
+def test_a_fish_set_has_gills_in_place_of_lungs_and_simulates(store_from_tree):
+    """A fish takes the fish layout by default (invented trout numbers): the whole cardiac output passes the
+    gills between venous and arterial blood, as it passes the lungs of air breathers, and the model built
+    from the SBML keeps its balances."""
+    ps = store_from_tree(FISH).parameter_set("rainbow_trout")
+    assert ps.layout.name == "fish" and "lung" not in ps.layout.compartments and not ps.gaps
+    gills = next(e for e in json.loads(ps.to_json())["circulation"] if e["compartment"] == "gills")
+    assert (gills["receives_from"], gills["drains_to"], gills["flow"]) == (["blood"], "blood", "cardiac_output")
+    assert ps.flows["gills"].value == ps.cardiac_output.value
+    assert_simulates(ps)
+
+
 NEUTRAL = """[[compound]]
 name = "lipophilic_neutral"
 log_p = 3.0

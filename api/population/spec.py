@@ -230,7 +230,7 @@ def _co_exponent(resolver, bm: float) -> tuple[float, str]:
 
 
 def population_spec(store, species: str, *, life_stage: str = "adult", sex: str | None = None, body_mass=None,
-                    body_mass_cv: float | None = None, body_mass_range=None, layout="whole_body",
+                    body_mass_cv: float | None = None, body_mass_range=None, layout=None,
                     fill: str = "none", without_sd: str = "fixed", default_cv: float = DEFAULT_CV,
                     balance: str = "redraw", stage_fallback: bool = False, animal_class: str | None = None,
                     verified_only: bool = False) -> PopulationSpec:

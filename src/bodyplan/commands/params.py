@@ -92,8 +92,8 @@ OUT_SUFFIXES = {"json": (".json",), "csv": (".csv",), "sbml": (".xml", ".sbml"),
               help="Use rows of this sex (and mixed).")
 @renamed_option("--body-mass", "--body-weight", "body_weight", default=None,
                 help='Body mass with a unit, e.g. "12 kg" or "26 lb" (default: the species\' typical body mass).')
-@click.option("--layout", default="whole_body", show_default=True,
-              help="whole_body, rich_slow, or a TOML layout file.")
+@click.option("--layout", default=None,
+              help="whole_body (the default; fish: fish), rich_slow, fish, or a TOML layout file.")
 @click.option("--fill", type=click.Choice(["none", "allometric"], case_sensitive=False), default="none",
               show_default=True, help="Fill gaps from a cross-species allometric fit (recorded on each value).")
 @click.option("--units", type=click.Choice(["SI", "clinical"], case_sensitive=False), default="SI", show_default=True,
@@ -119,7 +119,7 @@ def params_cmd(species, life_stage, sex, body_weight, layout, fill, units, fmt, 
 
     store_file = locate_store(store_path)
     if out:
-        layout_file = [Path(layout)] if Path(layout).suffix == ".toml" else []
+        layout_file = [Path(layout)] if layout and Path(layout).suffix == ".toml" else []
         guard_out(out, kind="text", suffixes=OUT_SUFFIXES[fmt], inputs=[store_file, *layout_file], force=force)
     if body_weight is not None:
         from ..units import parse_quantity_text

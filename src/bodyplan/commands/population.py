@@ -97,7 +97,7 @@ def summary(pop) -> list[str]:
 @click.option("--body-mass-cv", type=float, default=None, help="Between-animal CV of body mass (lognormal).")
 @click.option("--body-mass-range", nargs=2, default=None, metavar="LOW HIGH",
               help='Body masses uniform between two masses, e.g. "40 kg" "80 kg".')
-@click.option("--layout", default="whole_body", show_default=True, help="whole_body, rich_slow, or a TOML layout file.")
+@click.option("--layout", default=None, help="whole_body (the default; fish: fish), rich_slow, fish, or a TOML layout file.")
 @click.option("--fill", type=click.Choice(["none", "allometric"]), default="none", show_default=True,
               help="Fill gaps of the set from a cross-species fit (listed in the sidecar).")
 @click.option("--without-sd", type=click.Choice(["fixed", "default-cv"]), default="fixed", show_default=True,
