@@ -56,6 +56,7 @@ class GapReport:
     #                          covered_slots (slots with any row), waits_on
     most_wanted: pd.DataFrame  # slot, species_made_ready, gaps_closed_alone, species_needing, species
     sources: pd.DataFrame  # id, citation of every source behind a covered cell
+    composition: pd.DataFrame = None  # per species: tissues whose composition lets each Kp method run
 
     @property
     def under_studied(self) -> pd.DataFrame:
@@ -78,7 +79,8 @@ class GapReport:
                            "stored_compartments": list(p.stored), "quantities": list(p.quantities)}
                           for p in self.slots],
                 "readiness": records(self.under_studied), "most_wanted": records(self.most_wanted),
-                "coverage": records(self.coverage), "sources": records(self.sources)}
+                "coverage": records(self.coverage), "sources": records(self.sources),
+                "composition": records(self.composition)}
 
 
 def _rows(store, species: list[str] | None) -> pd.DataFrame:
@@ -262,4 +264,8 @@ def gap_report(store, species=None, life_stage: str = "adult", layout="whole_bod
     ids = sorted({s for text in coverage["sources"] for s in text.split("; ") if s})
     sources = store.frame(f"SELECT id, citation, doi FROM sources WHERE id IN ({', '.join('?' for _ in ids)}) "
                           "ORDER BY id", ids) if ids else pd.DataFrame(columns=["id", "citation", "doi"])
-    return GapReport(lay.name, life_stage, params, coverage, readiness, most_wanted, sources)
+    from .partition import composition_readiness
+
+    composition = composition_readiness(store, list(dict.fromkeys(coverage["species"])),
+                                        "adult" if life_stage == "all" else life_stage)
+    return GapReport(lay.name, life_stage, params, coverage, readiness, most_wanted, sources, composition)

@@ -128,6 +128,39 @@ def composition_coverage(store, species=None, life_stage: str = "adult") -> pd.D
     return out[columns]
 
 
+def composition_readiness(store, species: list[str], life_stage: str = "adult") -> pd.DataFrame:
+    """Per species: how many of the whole-body layout's tissues hold, from the species' own rows, every
+    composition input of each method (as ``_needs`` lists them), whether plasma and erythrocytes do, the
+    share of those inputs read in their source, and what to curate first."""
+    tissues = listed_tissues({}, [])
+    cases = {"poulin_theil": _needs("poulin_theil", set()),
+             "rodgers_rowland_neutral": _needs("rodgers_rowland", {"albumin", "lipoprotein"}),
+             "rodgers_rowland_base": _needs("rodgers_rowland", {"base2005"})}
+    records = []
+    for sp in species:
+        own = species_composition(store, sp, life_stage)
+        missing = lambda comp, roles: [r for r in roles if (comp, r) not in own]  # noqa: E731
+        row = {"species": sp, "life_stage": life_stage, "tissues": len(tissues)}
+        wanted: dict[str, int] = {}
+        for case, needs in cases.items():
+            complete = [t for t in tissues if not missing(t, needs["tissue"])]
+            fluids = all(not missing(comp, needs.get(kind, [])) for kind, comp in (("plasma", PLASMA), ("rbc", RBC)))
+            row[case] = len(complete) if fluids else 0
+            for t in tissues:
+                for role in missing(t, needs["tissue"]):
+                    wanted[f"{t} {role}"] = wanted.get(f"{t} {role}", 0) + 1
+            for kind, comp in (("plasma", PLASMA), ("rbc", RBC)):
+                for role in missing(comp, needs.get(kind, [])):
+                    wanted[f"{comp} {role}"] = wanted.get(f"{comp} {role}", 0) + 1
+        items = [i for (c, _), i in own.items() if c in tissues or c in (PLASMA, RBC)]
+        row["inputs"] = len(items)
+        row["verified_share"] = round(sum(i.verified for i in items) / len(items), 3) if items else None
+        row["to_curate"] = ", ".join(k for k, _ in sorted(wanted.items(), key=lambda kv: (-kv[1], kv[0]))[:4])
+        records.append(row)
+    return pd.DataFrame(records, columns=["species", "life_stage", "tissues", *cases, "inputs", "verified_share",
+                                          "to_curate"])
+
+
 # ---- what each compound needs ---------------------------------------------------------------------
 
 def _classes(c: Compounds) -> np.ndarray:

@@ -326,3 +326,22 @@ def test_what_each_species_waits_on(report):
     assert "body_mass" in ready.loc[EMPTY, "waits_on"].split(", ")
     for row in ready.itertuples():
         assert (row.waits_on == "") == (row.readiness == 1.0), row.Index
+
+
+def test_the_report_shows_which_kp_methods_each_species_composition_allows(real_store):
+    """Per species, the tissues whose own composition holds every input a Kp method needs, counted here by
+    hand from the composition rows; a species without plasma lipids can run no tissue at all, and the
+    report says what to curate."""
+    from bodyplan.api.partition import PLASMA, listed_tissues, species_composition
+
+    report = real_store.gap_report(["human", "rat", "pig"])
+    rows = report.composition.set_index("species")
+    for species in ("human", "rat", "pig"):
+        own = species_composition(real_store, species)
+        plasma = all((PLASMA, r) in own for r in ("water", "neutral_lipid", "neutral_phospholipid"))
+        by_hand = sum(all((t, r) in own for r in ("water", "neutral_lipid", "neutral_phospholipid"))
+                      for t in listed_tissues({}, []))
+        assert rows.loc[species, "poulin_theil"] == (by_hand if plasma else 0), species
+    assert rows.loc["human", "poulin_theil"] > 0  # human plasma and tissue lipids are stored
+    assert "plasma" in rows.loc["rat", "to_curate"]  # rat plasma lipids are not
+    assert {r["species"] for r in report.to_dict()["composition"]} == {"human", "rat", "pig"}

@@ -74,6 +74,12 @@ def gaps_cmd(species, stage, layout, fmt, out, force, store_path):
         counts = report.coverage.pivot_table(index=["species", "life_stage"], columns="state", values="slot",
                                              aggfunc="count", fill_value=0).reset_index()
         emit(counts, fmt, title="Coverage cells per state (full matrix: --format csv or json, or --out FILE.html)")
+        emit(report.composition.rename(columns={"poulin_theil": "Poulin–Theil", "rodgers_rowland_neutral":
+                                                "Rodgers–Rowland (neutral, acid)",
+                                                "rodgers_rowland_base": "Rodgers–Rowland (strong base)",
+                                                "inputs": "inputs held", "verified_share": "read share"}),
+             fmt, title="Tissue composition for Kp: tissues (of the whole-body layout) each method can run on "
+                        "from the species' own rows")
 
 
 @click.command("allometry")

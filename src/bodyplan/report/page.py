@@ -103,6 +103,17 @@ def gap_report_html(report: GapReport, png: bytes | None = None, store_info: dic
                                     "gaps_closed_alone": "gaps closed alone",
                                     "species_needing": "species needing", "species": "species"},
                numeric={"species_made_ready", "gaps_closed_alone", "species_needing"}, table_id="most-wanted"),
+        "<h2>Tissue composition for partition coefficients</h2>",
+        '<p class="note">Of the whole-body layout\'s tissues, how many hold every composition input a Kp method '
+        "needs, from the species' own rows (plasma, and for strong bases erythrocytes, included); "
+        "<em>read share</em>: inputs read in their source; <em>to curate</em>: the inputs most methods wait on.</p>",
+        _table(report.composition, {"species": "species", "tissues": "tissues", "poulin_theil": "Poulin–Theil",
+                                    "rodgers_rowland_neutral": "Rodgers–Rowland (neutral, acid)",
+                                    "rodgers_rowland_base": "Rodgers–Rowland (strong base)",
+                                    "inputs": "inputs held", "verified_share": "read share",
+                                    "to_curate": "to curate"},
+               numeric={"tissues", "poulin_theil", "rodgers_rowland_neutral", "rodgers_rowland_base", "inputs",
+                        "verified_share"}, table_id="composition"),
         "<h2>Sources behind each covered cell</h2>",
         _table(covered, {"species": "species", "life_stage": "stage", "slot": "slot", "state": "state",
                          "n_values": "values", "n_absolute": "absolute", "n_verified": "verified",
