@@ -253,7 +253,8 @@ def population_spec(store, species: str, *, life_stage: str = "adult", sex: str 
     ps = parameter_set(store, species, life_stage=life_stage, sex=sex, body_mass=centre, layout=layout, fill=fill,
                        stage_fallback=stage_fallback, animal_class=animal_class, verified_only=verified_only)
     if ps.body_mass.origin == "gap":
-        raise PopulationError(f"{species} ({life_stage}) has no stored body mass; give one (body_mass=, --body-mass)")
+        raise PopulationError(f"{species} ({life_stage}) has no stored body mass; give one (body_mass=, --body-mass), "
+                              "or take another stage's typical one (stage_fallback=True, --stage-fallback)")
     if ps.cardiac_output.origin == "gap":
         raise PopulationError(f"{species} ({life_stage}) has no cardiac output"
                               + (", and too few species of this life stage have one to fill it across species"
