@@ -232,7 +232,7 @@ def absolute_rows(store, quantity: str, compartment: str, life_stage: str = "adu
                                 "of the same subjects to become absolute"})
                 continue
             relative = r["quantity_id"] != quantity or r["normalisation"] == "body_mass"
-            ratio = counted._body_ratio(r)  # a share of empty body or carcass through the source's own ratio
+            ratio = counted.body_ratio(r)  # a share of empty body or carcass through the source's own ratio
             value = r["value_canonical"] * ratio * mass if relative else r["value_canonical"]
             kept.append({**described(r), "absolute": value, "body_mass_kg": mass, "body_mass_from": mass_from,
                          "converted": (f"× {mass:.4g} kg body mass" + (f" × {ratio:.4g} ({r['denominator']} to live)"

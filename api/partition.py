@@ -78,7 +78,7 @@ def species_composition(store, species: str, life_stage: str = "adult") -> dict[
     out: dict[tuple[str, str], Item] = {}
     for (quantity, comp), rows in sorted(counted.groups.items(), key=lambda kv: (kv[0][1], kv[0][0])):
         if quantity in by_quantity and rows:
-            out[(comp, by_quantity[quantity])] = _combine(counted._read_first(rows), species)
+            out[(comp, by_quantity[quantity])] = _combine(counted.read_first(rows), species)
     for comp in {c for c, _ in out}:
         ew, iw = out.get((comp, "extracellular_water")), out.get((comp, "intracellular_water"))
         if (comp, "water") not in out and ew and iw:

@@ -90,7 +90,7 @@ class Resolver(CountedRows):
     @cached_property
     def body_mass(self) -> Resolved:
         rows = [dict(r, _value=r["value_canonical"], _sd=r["sd_canonical"], _route="body_mass")
-                for r in self._read_first(self.rows("body_mass", "whole_body"))]
+                for r in self.read_first(self.rows("body_mass", "whole_body"))]
         if rows:  # body mass rows are themselves the subjects' body mass
             estimate = _pool(rows)
             return Resolved(estimate, rows, verified_share=_verified_share(rows, estimate))
@@ -183,7 +183,7 @@ class Resolver(CountedRows):
             summed = self._from_parts(compartment, self.volume_per_kg, "volume, mass or mass fraction")
             if not candidates or self._read_parts_win(summed, candidates):
                 return summed
-        rows = [r for r in _one_route_per_source(self._read_first(candidates), preference)
+        rows = [r for r in _one_route_per_source(self.read_first(candidates), preference)
                 if not math.isnan(r["_value"])]
         if not rows:
             return _gap(f"{compartment} masses lack the subjects' body mass")
@@ -196,7 +196,7 @@ class Resolver(CountedRows):
         return resolved
 
     def _routed(self, row: dict, route: str, factor: float) -> dict:
-        factor *= self._body_ratio(row)  # a share of empty body mass × the source's empty/live ratio
+        factor *= self.body_ratio(row)  # a share of empty body mass × the source's empty/live ratio
         return dict(row, _route=route, _value=row["value_canonical"] * factor,
                     _sd=None if row["sd_canonical"] is None else row["sd_canonical"] * factor)
 
@@ -268,14 +268,14 @@ class Resolver(CountedRows):
         """A rate such as GFR per kg body weight, from absolute (over the subjects' mass) or per-kg rows."""
         rows = [r for r in self.rows(quantity, compartment) if r["normalisation"] in ("none", "body_mass",
                                                                                         "body_surface")]
-        rows = self._per_body_mass(self._read_first(rows), quantity)
+        rows = self._per_body_mass(self.read_first(rows), quantity)
         if not rows:
             return _gap(f"no {quantity} per body mass or absolute stored for {self.species} ({self.life_stage})")
         return self._resolved(rows, sorted({r["_over"] for r in rows if "_over" in r}))
 
     def fraction(self, quantity: str, compartment: str) -> Resolved:
         """A dimensionless fraction such as hematocrit, pooled across sources."""
-        rows = [self._routed(r, quantity, 1.0) for r in self._read_first(self.rows(quantity, compartment))]
+        rows = [self._routed(r, quantity, 1.0) for r in self.read_first(self.rows(quantity, compartment))]
         if not rows:
             return _gap(f"no {quantity} stored for {self.species} ({self.life_stage})")
         return self._resolved(rows, [])
@@ -285,7 +285,7 @@ class Resolver(CountedRows):
     def cardiac_output_rows(self) -> list[dict]:
         rows = [r for r in self.rows("cardiac_output", "whole_body")
                 if r["normalisation"] in ("none", "body_mass", "body_surface")]
-        return [dict(r, _mass=self.subject_mass(r)) for r in self._per_body_mass(self._read_first(rows),
+        return [dict(r, _mass=self.subject_mass(r)) for r in self._per_body_mass(self.read_first(rows),
                                                                                  "cardiac_output")]
 
     def cardiac_output(self, body_mass: float) -> Resolved:
@@ -368,7 +368,7 @@ class Resolver(CountedRows):
             summed = self._from_parts(compartment, self.flow_fraction, "blood flow")
             if self._read_parts_win(summed, candidates):
                 return summed
-        rows = _one_route_per_source(self._read_first(candidates), preference)
+        rows = _one_route_per_source(self.read_first(candidates), preference)
         notes = sorted({r["_over"] for r in rows if "_over" in r})
         return self._resolved(rows, notes)
 

@@ -3,7 +3,7 @@
 The rows of one species, stage and sex (and class) are read once; a part that is not the whole, a method
 not accepted for the animal and quantity, a reprint of a source that is itself here, a group whose
 animals another row already counts, or a share of empty body without its source's ratio is left out, and
-``left_out`` says why (trace shows it). Recalled rows give way to read ones (``_read_first``). The
+``left_out`` says why (trace shows it). Recalled rows give way to read ones (``read_first``). The
 resolver (resolve.py) turns the rows that count into parameters.
 """
 
@@ -86,7 +86,7 @@ class CountedRows:
         original = self._derived_from.get(r["source_id"])
         if original and (original, r["quantity_id"], r["compartment_id"]) in present:
             return f"reprints {original}, which is counted instead"
-        if self._body_ratio(r) is None:
+        if self.body_ratio(r) is None:
             return f"a share of {r['denominator'].replace('_', ' ')} mass without its source's ratio to live mass"
         return ""
 
@@ -147,7 +147,7 @@ class CountedRows:
                 keep -= children - chosen[parent]
         return keep
 
-    def _read_first(self, rows: list[dict]) -> list[dict]:
+    def read_first(self, rows: list[dict]) -> list[dict]:
         """Rows read in their source text stand for a parameter whenever there are any; rows recalled
         from memory are used only where nothing read exists (and trace says which were set aside)."""
         read = [r for r in rows if r["verified"]]
@@ -158,7 +158,7 @@ class CountedRows:
                 self.left_out[(r["source_id"], r["row_id"])] = "recalled, not read: rows read in their source exist"
         return read
 
-    def _body_ratio(self, row: dict) -> float | None:
+    def body_ratio(self, row: dict) -> float | None:
         """What turns the row's share or per-kg value into one of live body mass: 1 for live body (and for a
         flow per kg of its tissue, which is converted elsewhere); for empty body or carcass the source's
         own ratio to live body mass, for the same animals (None without one)."""
