@@ -4,7 +4,7 @@ animals behind the set's rows."""
 
 from __future__ import annotations
 
-from ..schema.model import LIVER, PORTAL_ORGANS, SHARES_OF_A_WHOLE, is_pulmonary, parameter_of
+from ..schema.model import LIVER, PORTAL_ORGANS, SHARES_OF_A_WHOLE, TEMPERATURE_BAND, is_pulmonary, parameter_of
 from .cell import Cell
 from .layouts import REST
 from .rows import SAME_SUBJECTS
@@ -108,3 +108,26 @@ def studied_range_check(resolver, ps) -> None:
     ps.checks.append({"check": "body_mass_within_studied_range", "status": "pass" if inside else "warn",
                       "detail": f"body mass {bw:.4g} kg against {low:.4g}–{high:.4g} kg of the subjects behind "
                                 f"this species' rows at this stage (margin ×{STUDIED_RANGE_MARGIN:g})"})
+
+
+def temperature_check(resolver, ps) -> None:
+    """Fish and other ectotherms: at which water or air temperatures the rows behind the set were measured.
+    Rows far apart in temperature pooled without a temperature asked, or rows that state none, are said."""
+    counted = [r for rows in resolver.groups.values() for r in rows]
+    stated = sorted(r["temperature_c"] for r in counted if r["temperature_c"] is not None)
+    far = sum(1 for why in resolver.left_out.values() if why.startswith("measured at"))
+    if not stated and not far:
+        return
+    silent = len(counted) - len(stated)
+    spread = bool(stated) and stated[-1] - stated[0] > 2 * TEMPERATURE_BAND and ps.temperature is None
+    said = [f"rows measured at {stated[0]:g}–{stated[-1]:g} °C" if stated else "no row measured near it"]
+    if ps.temperature is not None:
+        said[0] += f" for a set at {ps.temperature:g} °C"
+    if far:
+        said.append(f"{far} row(s) measured more than {TEMPERATURE_BAND:g} °C away left out")
+    if silent:
+        said.append(f"{silent} row(s) state no temperature")
+    if spread:
+        said.append("ask for one temperature (temperature option)")
+    ps.checks.append({"check": "temperature", "status": "warn" if spread or silent or not stated else "pass",
+                      "detail": "; ".join(said)})

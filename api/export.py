@@ -18,7 +18,8 @@ from pathlib import Path
 from ..schema import descriptors
 from ..schema.columns import TABLE_DESCRIPTIONS, describe
 
-TABLES = ["species", "life_stages", "compartments", "quantities", "methods", "parts", "classes", "body_surface",
+TABLES = ["species", "life_stages", "compartments", "quantities", "methods", "parts", "conditions", "classes",
+          "body_surface",
           "sources", "groups", "curated_values", "build_info", "input_files"]
 FORMATS = ["csv", "json"]
 SQL_TYPES = {"INTEGER": "integer", "FLOAT": "number", "REAL": "number", "BOOLEAN": "boolean"}
@@ -27,7 +28,7 @@ DROPPED = {"curated_values": {"id"}}  # the store's row number: identity is (sou
 FOREIGN = {
     "curated_values": [("source_id", "sources"), ("species_id", "species"), ("life_stage_id", "life_stages"),
                        ("compartment_id", "compartments"), ("quantity_id", "quantities"), ("part_id", "parts"),
-                       ("method_id", "methods")],
+                       ("method_id", "methods"), ("condition_id", "conditions")],
     "compartments": [("part_of", "compartments")],
     "parts": [("part_of", "parts")],
     "groups": [("source_id", "sources")],

@@ -11,10 +11,11 @@ import pandas as pd
 
 from .. import CAUTION
 from ..errors import BodyplanError
+from ..schema.descriptors import ECTOTHERMS
 from ..schema.model import (LIVER, PARAMETERS, PORTAL_ORGANS, VESSELS_OF_LIVER, circulation, default_layout,
                             has_own_flow, is_portal, is_pulmonary, slot_id)
 from .cell import Cell
-from .checks import class_check, close_balances, source_sum_checks, studied_range_check
+from .checks import class_check, close_balances, source_sum_checks, studied_range_check, temperature_check
 from .fallback import fall_back, from_stage, other_stage_rows, point_to_other_stages, stage_order
 from .layouts import REST, Layout, load_layout
 from .pooling import Estimate
@@ -93,6 +94,7 @@ class ParameterSet:
     fill: str = "none"  # how gaps were filled: none, or allometric on request
     units: str = "SI"
     partition: list[dict] = field(default_factory=list)  # Kp per compound and model compartment, when asked
+    temperature: float | None = None  # °C, for ectotherms when asked: rows measured near it
 
     def add_partition_coefficients(self, store, compounds, *, method: str = "rodgers_rowland",
                                    borrow_from=None) -> "ParameterSet":
@@ -154,6 +156,7 @@ class ParameterSet:
             "sex": self.sex,
             "layout": self.layout.name,
             "fill": self.fill,
+            **({"temperature_c": self.temperature} if self.temperature is not None else {}),
             "body_mass": self.body_mass.as_dict(),
             "cardiac_output": self._unit_cell("cardiac_output", self.cardiac_output).as_dict(),
             "liver_flow": self.liver_flow,
@@ -332,12 +335,13 @@ def _combined(parts: list[Cell], value: float, method: str) -> Cell:
                 verified_share=_weighted_share(parts))
 
 
-def _from_other_stage(store, species, life_stage, sex, verified_only, animal_class, number) -> Cell | None:
-    """The first of the other stages (nearest first) whose rows give ``number(resolver)``, named as a fallback."""
+def _from_other_stage(store, species, life_stage, number, **rows) -> Cell | None:
+    """The first of the other stages (nearest first) whose rows give ``number(resolver)``, named as a fallback;
+    ``rows`` are the set's row options (sex, verified_only, animal_class, temperature)."""
     stages = [r[0] for r in store.query("SELECT DISTINCT life_stage_id FROM curated_values WHERE species_id = ?",
                                         (species,))]
     for stage in stage_order(life_stage, stages):
-        cell = number(Resolver(store, species, stage, sex, verified_only=verified_only, animal_class=animal_class))
+        cell = number(Resolver(store, species, stage, **rows))
         if cell is not None:
             return from_stage(cell, stage)
     return None
@@ -355,6 +359,23 @@ def _typical_body_mass(resolver) -> Cell | None:
     return cell if bw is not None else None
 
 
+def _temperature_option(temperature, species: str, taxon: str) -> float | None:
+    """A set's water or air temperature in °C; only for animals whose body takes it (fish, reptiles …)."""
+    if temperature is None:
+        return None
+    if taxon not in ECTOTHERMS:
+        raise ParameterSetError(f"a {taxon} such as {species} keeps its own body temperature; a temperature "
+                                "is for fish, reptiles and amphibians")
+    if isinstance(temperature, (int, float)) and not isinstance(temperature, bool):
+        return float(temperature)
+    from ..units import UnitError, temperature_celsius
+
+    try:
+        return temperature_celsius(temperature)
+    except UnitError as exc:
+        raise ParameterSetError(str(exc)) from None
+
+
 def _body_mass_option(body_mass, body_weight):
     if body_weight is not None:
         import warnings
@@ -368,12 +389,14 @@ def _body_mass_option(body_mass, body_weight):
 
 def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | None = None, body_mass=None,
                   layout=None, fill: str = "none", units: str = "SI", stage_fallback: bool = False,
-                  verified_only: bool = False, animal_class: str | None = None, body_weight=None) -> ParameterSet:
+                  verified_only: bool = False, animal_class: str | None = None, temperature=None,
+                  body_weight=None) -> ParameterSet:
     """A layout's volumes and flows at one body mass (the species' typical one if not given), every gap
     marked. The layout is whole_body (fish: fish) unless one is given. ``fill="allometric"`` fills gaps across species; ``stage_fallback`` fills them from the
     species' rows at other life stages (named on each value); ``verified_only`` uses only rows read in
     their source text; ``animal_class`` (vocab/classes.csv: broiler, dairy, minipig …) keeps rows of that
-    class and rows that name none; ``units`` is "SI" or "clinical"."""
+    class and rows that name none; ``temperature`` (fish and other ectotherms: '12 degC' or °C) keeps rows
+    measured within TEMPERATURE_BAND of it and rows that state none; ``units`` is "SI" or "clinical"."""
     body_mass = _body_mass_option(body_mass, body_weight)
     if fill not in ("none", "allometric"):
         raise ParameterSetError(f"fill must be 'none' or 'allometric', not {fill!r}")
@@ -391,12 +414,14 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
         known = [r[0] for r in store.query("SELECT id FROM classes WHERE species = ? ORDER BY id", (species,))]
         raise ParameterSetError(f"{species} has no class {animal_class!r}; "
                                 f"{'its classes: ' + ', '.join(known) if known else 'none is curated'}")
-    resolver = Resolver(store, species, life_stage, sex, verified_only=verified_only, animal_class=animal_class)
+    taxon = store.query("SELECT taxon_class FROM species WHERE id = ?", (species,))[0][0]
+    celsius = _temperature_option(temperature, species, taxon)
+    rows = dict(sex=sex, verified_only=verified_only, animal_class=animal_class, temperature=celsius)
+    resolver = Resolver(store, species, life_stage, **rows)
     bw_cell, bw = _body_mass(resolver, body_mass)
-    options = dict(sex=sex, layout=lay, fill=fill, units=units, verified_only=verified_only,
-                   animal_class=animal_class)
+    options = dict(rows, layout=lay, fill=fill, units=units)
     if bw is None and stage_fallback:
-        borrowed = _from_other_stage(store, species, life_stage, sex, verified_only, animal_class, _typical_body_mass)
+        borrowed = _from_other_stage(store, species, life_stage, _typical_body_mass, **rows)
         if borrowed is not None:
             ps = parameter_set(store, species, life_stage=life_stage, body_mass=borrowed.value, stage_fallback=True,
                                **options)
@@ -408,8 +433,7 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
     else:
         co = _scaled_cell(resolver.cardiac_output(bw), 1.0, "L/h", bw)
     if stage_fallback and co.origin == "gap" and bw is not None:  # the flows below are shares of it
-        co = _from_other_stage(store, species, life_stage, sex, verified_only, animal_class,
-                               _cardiac_output_of(bw)) or co
+        co = _from_other_stage(store, species, life_stage, _cardiac_output_of(bw), **rows) or co
     if fill == "allometric" and co.origin == "gap" and bw is not None:
         from .fill import fill_cardiac_output
 
@@ -428,7 +452,7 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
         else:
             physiology[name] = _scaled_cell(resolved, bw, declared.unit, bw).resting_on(name, "body_mass")
     ps = ParameterSet(species, life_stage, sex, lay, bw_cell, co, volumes, flows, liver_flow, physiology,
-                      fill=fill, units=units)
+                      fill=fill, units=units, temperature=celsius)
     if stage_fallback and bw is not None:
         # the other stage's own rows only: a gap still left is filled across species below, and says so
         other_stage = lambda stage: parameter_set(store, species, life_stage=stage, body_mass=bw,  # noqa: E731
@@ -448,6 +472,7 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
     close_balances(ps)
     source_sum_checks(resolver, ps)
     class_check(resolver, ps)
+    temperature_check(resolver, ps)
     if bw_cell.origin == "given":
         studied_range_check(resolver, ps)
     for comp, cell in ps.volumes.items():

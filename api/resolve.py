@@ -82,8 +82,9 @@ class Resolver(CountedRows):
     """The rules turning the rows that count into per-body-mass estimates."""
 
     def __init__(self, store, species: str, life_stage: str = "adult", sex: str | None = None,
-                 verified_only: bool = False, animal_class: str | None = None, all_methods: bool = False):
-        super().__init__(store, species, life_stage, sex, verified_only, animal_class, all_methods)
+                 verified_only: bool = False, animal_class: str | None = None, all_methods: bool = False,
+                 temperature: float | None = None):
+        super().__init__(store, species, life_stage, sex, verified_only, animal_class, all_methods, temperature)
         self._co_cache: dict[float, Resolved] = {}
 
     # ---- body weight -------------------------------------------------------------------------

@@ -1,7 +1,7 @@
 """Which of one species' curated rows count, and as which animals.
 
-The rows of one species, stage and sex (and class) are read once; a part that is not the whole, a method
-not accepted for the animal and quantity, a reprint of a source that is itself here, a group whose
+The rows of one species, stage and sex (and class) are read once; a part that is not the whole, a condition
+sets do not describe (exercise, exhaustion …), a method not accepted for the animal and quantity, a reprint of a source that is itself here, a group whose
 animals another row already counts, or a share of empty body without its source's ratio is left out, and
 ``left_out`` says why (trace shows it). Recalled rows give way to read ones (``read_first``). The
 resolver (resolve.py) turns the rows that count into parameters.
@@ -13,11 +13,11 @@ from collections import defaultdict
 from functools import cached_property
 
 from ..schema.descriptors import DENOMINATORS
-from ..schema.model import body_plan, stands_for_the_whole
+from ..schema.model import TEMPERATURE_BAND, body_plan, stands_for_the_whole
 
 ROW_COLUMNS = ("source_id, row_id, compartment_id, quantity_id, normalisation, value_canonical, sd_canonical, "
                "n, subject_body_mass_kg, sex, strain, age, verified, file, line, group_id, part_id, method_id, "
-               "class_id, denominator")
+               "class_id, denominator, condition_id, temperature_c")
 SAME_SUBJECTS = ("source_id", "group_id")  # rows of one source describing the same animals
 
 
@@ -25,9 +25,10 @@ class CountedRows:
     """All rows of one species, stage and sex, and which of them count."""
 
     def __init__(self, store, species: str, life_stage: str = "adult", sex: str | None = None,
-                 verified_only: bool = False, animal_class: str | None = None, all_methods: bool = False):
+                 verified_only: bool = False, animal_class: str | None = None, all_methods: bool = False,
+                 temperature: float | None = None):
         self.store, self.species, self.life_stage, self.sex = store, species, life_stage, sex
-        self.animal_class, self.all_methods = animal_class, all_methods
+        self.animal_class, self.all_methods, self.temperature = animal_class, all_methods, temperature
         self.target_mass: float | None = None  # the set's body mass, for within-species scaling
         sql = (f"SELECT {ROW_COLUMNS} FROM curated_values WHERE species_id = ? AND life_stage_id = ? "
                "AND value_canonical IS NOT NULL" + (" AND verified = 1" if verified_only else ""))
@@ -81,6 +82,12 @@ class CountedRows:
     def _not_for_pooling(self, r: dict, present: set) -> str:
         if not stands_for_the_whole(r["part_id"], r["compartment_id"]):
             return f"part {r['part_id']}: not the whole {r['compartment_id']}"
+        if r["condition_id"] not in self._in_sets:
+            return f"measured in condition {r['condition_id']}: sets describe animals at rest (vocab/conditions.csv)"
+        measured_at = r["temperature_c"]
+        if self.temperature is not None and measured_at is not None \
+                and abs(measured_at - self.temperature) > TEMPERATURE_BAND:
+            return f"measured at {measured_at:g} °C; the set is for {self.temperature:g} ± {TEMPERATURE_BAND:g} °C"
         if not self.all_methods and r["method_id"] and not self._accepted(r["method_id"], r["quantity_id"]):
             return f"method {r['method_id']} is not accepted for {r['quantity_id']} here (vocab/methods.csv)"
         original = self._derived_from.get(r["source_id"])
@@ -89,6 +96,10 @@ class CountedRows:
         if self.body_ratio(r) is None:
             return f"a share of {r['denominator'].replace('_', ' ')} mass without its source's ratio to live mass"
         return ""
+
+    @cached_property
+    def _in_sets(self) -> frozenset[str]:
+        return frozenset(r[0] for r in self.store.query("SELECT id FROM conditions WHERE in_sets = 'yes'"))
 
     @cached_property
     def _methods(self) -> dict[str, dict]:

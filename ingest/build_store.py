@@ -19,7 +19,7 @@ from .plausibility import check_plausibility
 from .read import CuratedTree, read_tree
 from .validate import validate
 
-HASHED_TABLES = ["species", "life_stages", "compartments", "quantities", "methods", "parts", "classes",
+HASHED_TABLES = ["species", "life_stages", "compartments", "quantities", "methods", "parts", "conditions", "classes",
                  "body_surface", "sources", "groups", "curated_values", "input_files"]
 
 
@@ -134,7 +134,8 @@ def _value_columns(frame: pd.DataFrame) -> tuple[list[list], list]:
         strip["comment"], frame["_file"].tolist(), frame["_line"].astype(int).tolist(),
         strip["class"], frame["_group"].tolist(), frame["_part"].tolist(), strip["method"],
         frame["_statistic"].tolist(), (frame["_uncertainty_assumed"] == "yes").astype(int).tolist(),
-        frame["_n_counts"].tolist(), frame["_denominator"].tolist(),
+        frame["_n_counts"].tolist(), frame["_denominator"].tolist(), frame["_condition"].tolist(),
+        num("_temperature_c"),
     ]
     columns.insert(0, list(range(1, len(frame) + 1)))  # the store's id first, as SELECT * gives it back
     return columns, [arrays.get(id(c), c) for c in columns]
@@ -145,7 +146,8 @@ VALUE_COLUMNS = ["id", "source_id", "row_id", "species_id", "life_stage_id", "ag
                  "unit_canonical", "normalisation", "uncertainty", "spread", "low", "high", "sd_canonical",
                  "low_canonical", "high_canonical", "n", "subject_body_mass_kg", "basis", "locator", "verified",
                  "missing_reason", "comment", "file", "line", "class_id", "group_id", "part_id", "method_id",
-                 "statistic", "uncertainty_assumed", "n_counts", "denominator"]
+                 "statistic", "uncertainty_assumed", "n_counts", "denominator", "condition_id",
+                 "temperature_c"]
 
 
 def _digest_columns(digest, n_rows: int, columns) -> None:

@@ -77,6 +77,7 @@ CODES: dict[str, str] = {
     "V240": 'A Meeh body-surface formula without its constant k. Give k for the species.',
     "V241": 'A k given for a formula that takes none. Leave k empty.',
     "V243": 'A blood flow per mass that does not say per which mass. Set denominator to tissue (per kg of the organ, as in mL/min/100 g) or live_body (per kg of body mass).',
+    "V244": 'A temperature given for a mammal or bird. Clear it; heat or cold stress goes in condition.',
     "V242": 'Two entries in sources.bib share a DOI, or a title and year: one publication counted as two sources. Keep one entry.',
     "W301": "The value lies outside the quantity's plausible range. Check the unit and the digits.",
     "W302": "Fractions of one animal group in one source sum to an odd total. Look for a part counted with its "

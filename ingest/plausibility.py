@@ -315,7 +315,7 @@ def check_methods_accepted(frame: pd.DataFrame, tree: CuratedTree, findings: Fin
                           code="W307")
 
 
-SAME_MEASUREMENT = [*ANIMALS, "compartment", "quantity", "_part", "_denominator", "method", "_statistic",
+SAME_MEASUREMENT = [*ANIMALS, "compartment", "quantity", "_part", "_denominator", "method", "_condition", "_statistic",
                     "_normalisation"]
 
 

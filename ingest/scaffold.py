@@ -25,10 +25,11 @@ REQUIRED_BIB_FIELDS = ("title", "year")
 EXAMPLE_ROW = {
     "id": "t2_liver_m", "species": "rat", "life_stage": "adult", "age": "10 week", "sex": "male",
     "strain": "Sprague-Dawley", "class": "", "group": "male", "compartment": "liver",
-    "quantity": "tissue_mass_fraction", "part": "tissue", "method": "dissection_weighing", "value": "3.40",
+    "quantity": "tissue_mass_fraction", "part": "tissue", "method": "dissection_weighing", "condition": "rest",
+    "value": "3.40",
     "unit": "%", "uncertainty": "sd", "spread": "0.25", "low": "", "high": "", "statistic": "mean",
     "uncertainty_assumed": "no", "n": "8", "n_counts": "animals", "body_mass": "0.25 kg",
-    "denominator": "live_body", "basis": "measured", "locator": "Table 2, p. 412", "verified": "yes",
+    "temperature": "", "denominator": "live_body", "basis": "measured", "locator": "Table 2, p. 412", "verified": "yes",
     "missing_reason": "", "comment": "example row: replace every cell with what the source prints",
 }
 

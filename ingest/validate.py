@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 
 from ..schema import descriptors
-from ..units import UnitError, conversion, forms, parse_unit
+from ..units import UnitError, conversion, forms, parse_unit, temperature_celsius
 from .findings import Findings
 from .read import BIB_FILE, CuratedTree, read_table
 
@@ -304,7 +304,7 @@ def check_values(tree: CuratedTree, source_keys: set[str], findings: Findings) -
     vocab_ids = {name: set(v["id"]) for name, v in tree.vocab.items() if "id" in v}
     for column, vocab in (("species", "species"), ("life_stage", "life_stages"),
                           ("compartment", "compartments"), ("quantity", "quantities"), ("part", "parts"),
-                          ("method", "methods")):
+                          ("method", "methods"), ("condition", "conditions")):
         check_foreign(frame, column, vocab_ids.get(vocab, set()), vocab, findings, skip)
     frame = frame.assign(**{f"_{name}": frame[name].where(frame[name] != "", default)
                             for name, default in descriptors.defaults(descriptors.VALUES).items()})
@@ -388,6 +388,12 @@ def check_semantics(frame: pd.DataFrame, tree: CuratedTree, findings: Findings, 
     _report(frame, (frame["_uncertainty_assumed"] == "yes") & ~kind.isin(["sd", "se"]), "uncertainty_assumed",
             "is yes, but only an sd or se read from an unlabelled ± can be assumed; set uncertainty to sd or se, "
             "or this to no", findings, skip, code="V229")
+    species = tree.vocab.get("species")
+    if species is not None:
+        warm = set(species["id"][~species["taxon_class"].isin(descriptors.ECTOTHERMS)])
+        _report(frame, (frame["temperature"] != "") & frame["species"].isin(warm), "temperature",
+                lambda v: f"{v!r} is given for a mammal or bird, whose body keeps its own temperature; clear it "
+                          "(heat or cold stress goes in condition)", findings, skip, code="V244")
     n = numeric(frame, "n")
     _report(frame, (frame["_statistic"] == "single_animal") & (n > 1), "statistic",
             "is single_animal but n is above 1; give the group's statistic or n = 1", findings, skip,
@@ -476,7 +482,21 @@ def attach_measures(frame: pd.DataFrame, findings: Findings, skip: set) -> pd.Da
              (frame["_high_canonical"].to_numpy() - frame["_low_canonical"].to_numpy()) / 3.92 * np.sqrt(n)],
             default=np.nan,
         )
-    return frame.assign(_body_mass_kg=body_kg, _age_days=age_days, _sd_canonical=sd)
+    return frame.assign(_body_mass_kg=body_kg, _age_days=age_days, _sd_canonical=sd,
+                        _temperature_c=_temperatures(frame, findings, skip))
+
+
+def _temperatures(frame: pd.DataFrame, findings: Findings, skip: set) -> np.ndarray:
+    """The temperature column in °C, read once per distinct text (a temperature may be below zero)."""
+    out = np.full(len(frame), np.nan)
+    for text, index in frame.groupby("temperature", sort=False).indices.items():
+        if not text.strip():
+            continue
+        try:
+            out[index] = temperature_celsius(text)
+        except UnitError as exc:
+            _report(frame.iloc[index], np.ones(len(index)), "temperature", str(exc), findings, skip, code="V225")
+    return out
 
 
 def validate(tree: CuratedTree, findings: Findings) -> pd.DataFrame:

@@ -6,7 +6,7 @@ reads a built store (``bodyplan params``) never needs.
 
 from . import descriptors
 
-_TABLE_NAMES = ["TABLES", "BodySurfaceFormula", "BuildInfo", "Compartment", "Group", "InputFile", "LifeStage", "Method",
+_TABLE_NAMES = ["TABLES", "BodySurfaceFormula", "BuildInfo", "Compartment", "Condition", "Group", "InputFile", "LifeStage", "Method",
                 "Part", "QuantityDef", "Source", "Species", "SpeciesClass", "Value"]
 
 

@@ -11,7 +11,7 @@ from . import descriptors
 # store column of curated_values → curated-file column whose description it keeps
 CURATED_COLUMN = {"species_id": "species", "life_stage_id": "life_stage", "compartment_id": "compartment",
                   "quantity_id": "quantity", "row_id": "id", "class_id": "class", "group_id": "group",
-                  "part_id": "part", "method_id": "method"}
+                  "part_id": "part", "method_id": "method", "condition_id": "condition"}
 
 TABLE_DESCRIPTIONS = {
     "curated_values": "One row per value printed in a source, as reported and converted to the quantity's "
@@ -37,6 +37,7 @@ STORE_COLUMNS = {  # columns that exist only in the store
         "low_canonical": "Lower bound of a ci95 or range in the canonical unit.",
         "high_canonical": "Upper bound of a ci95 or range in the canonical unit.",
         "subject_body_mass_kg": "Subjects' mean body mass in kilograms.",
+        "temperature_c": "The water or air temperature converted to degrees Celsius.",
         "file": "Curated file the row was read from.",
         "line": "Line of that file.",
     },

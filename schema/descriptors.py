@@ -16,6 +16,7 @@ BASES = ["measured", "derived", "estimated", "reference"]
 YES_NO = ["yes", "no"]
 QUANTITY_KINDS = ["absolute", "fraction", "ratio"]
 TAXON_CLASSES = ["mammal", "bird", "fish", "reptile", "amphibian"]
+ECTOTHERMS = ["fish", "reptile", "amphibian"]  # taxon classes whose body takes the temperature around it
 COMPARTMENT_KINDS = ["whole_body", "organ", "tissue", "fluid", "vessel", "cells", "product", "other"]
 GROUP_ID = r"[a-z0-9][a-z0-9_.\-]*"  # like a row id: 'all', 'male', 'd3.5_f'
 SCOPE = r"[a-z_]+(:[a-z_]+)?"  # where a method is refused: a taxon class or species, optionally ':quantity'
@@ -74,6 +75,9 @@ VALUES = {
               foreign="parts", default="tissue"),
         field("method", description="How the number was measured, from vocab/methods.csv (the method must "
               "apply to the quantity); empty if not stated.", foreign="methods"),
+        field("condition", description="The animals' state when measured, from vocab/conditions.csv (rest, "
+              "anaesthesia, exercise …); sets use only conditions marked in_sets there.", foreign="conditions",
+              default="rest"),
         field("value", "number", "The number as the source prints it; empty only with missing_reason."),
         field("unit", description="Unit as reported, in pint syntax, e.g. '%', 'g', 'mL/min/kg'.",
               required=True),
@@ -92,6 +96,9 @@ VALUES = {
               default="animals"),
         field("body_mass", description="Subjects' mean body mass with a unit, e.g. '0.25 kg'.",
               pattern=QUANTITY_TEXT),
+        field("temperature", description="Water or air temperature the animals were kept at when measured, "
+              "with a unit, e.g. '15 degC'; for fish and other animals whose body takes the temperature around "
+              "it, where it sets their physiology.", pattern=QUANTITY_TEXT),
         field("denominator", description="For fractions of body mass and per-kg values, which mass: live_body, "
               "empty_body (live minus gut contents) or carcass; for a blood flow per mass, tissue (per kg of the "
               "compartment's own tissue, e.g. mL/min/100 g) or live_body (per kg of body mass), always stated.",
@@ -191,6 +198,20 @@ PARTS = {
     ],
 }
 
+CONDITIONS = {
+    "description": "The animals' state when a number was measured, and whether parameter sets use it.",
+    "primaryKey": ["id"],
+    "fields": [
+        field("id", description="Condition id.", required=True, pattern=ID),
+        field("label", description="Name in words.", required=True),
+        field("in_sets", description="yes if parameter sets (animals at rest) use rows of this condition.",
+              required=True, enum=YES_NO),
+        field("reason", description="Why: a published source (authors, year) or 'common practice, no source'.",
+              required=True),
+        field("description", description="What the condition covers."),
+    ],
+}
+
 CLASSES = {
     "description": "Production classes, breed classes and strain categories below a species.",
     "primaryKey": ["species", "id"],
@@ -225,6 +246,7 @@ VOCABULARIES = {
     "methods": METHODS,
     "parts": PARTS,
     "classes": CLASSES,
+    "conditions": CONDITIONS,
     "body_surface": BODY_SURFACE,
 }
 

@@ -131,6 +131,9 @@ COMPOSITION = {
 # rest_of_body has no composition of its own (it is what the named compartments leave of the body): its
 # Kp is taken as that of this tissue, marked "assumed" on the row (common practice, no source).
 REST_KP_LIKE = "muscle"
+# A set asked for a water or air temperature uses rows measured within this many °C of it. A choice of this
+# project: with a Q10 near 2 (from memory, for fish metabolic rate) 3 °C changes a rate by about a quarter.
+TEMPERATURE_BAND = 3.0
 # Life stages to borrow from when a stage lacks a parameter, nearest first (common practice, no source).
 STAGE_FALLBACK = {"lactating": ("adult", "pregnant"), "laying": ("adult",), "pregnant": ("adult",),
                   "senior": ("adult",), "adult": ("senior", "juvenile"), "juvenile": ("adult", "neonate"),

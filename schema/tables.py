@@ -84,6 +84,15 @@ class Part(SQLModel, table=True):
     description: Optional[str] = None
 
 
+class Condition(SQLModel, table=True):
+    __tablename__ = "conditions"
+    id: str = Field(primary_key=True)
+    label: str
+    in_sets: str
+    reason: str
+    description: Optional[str] = None
+
+
 class SpeciesClass(SQLModel, table=True):
     __tablename__ = "classes"
     species: str = Field(sa_column=Column(String, ForeignKey("species.id"), primary_key=True))
@@ -190,6 +199,8 @@ class Value(SQLModel, table=True):
     uncertainty_assumed: bool = False
     n_counts: str = "animals"
     denominator: str = "live_body"
+    condition_id: str = _ref("conditions.id", nullable=False)
+    temperature_c: Optional[float] = None  # the row's temperature in °C
 
 
 class BuildInfo(SQLModel, table=True):
@@ -204,5 +215,5 @@ class InputFile(SQLModel, table=True):
     sha256: str
 
 
-TABLES = [Species, LifeStage, Compartment, QuantityDef, Method, Part, SpeciesClass, BodySurfaceFormula, Source, Group,
+TABLES = [Species, LifeStage, Compartment, QuantityDef, Method, Part, Condition, SpeciesClass, BodySurfaceFormula, Source, Group,
           Value, BuildInfo, InputFile]

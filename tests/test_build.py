@@ -23,7 +23,7 @@ def test_check_clean_tree_exits_0(fixture_tree):
     result = run("check", fixture_tree)
     assert result.exit_code == 0, result.output
     assert result.stdout == ""
-    assert result.stderr.endswith(": 12 value rows in 11 files: 0 error(s), 0 warning(s)\n")
+    assert result.stderr.endswith(": 12 value rows in 12 files: 0 error(s), 0 warning(s)\n")
 
 
 def test_check_errors_exit_1(scenario_tree):

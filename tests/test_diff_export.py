@@ -50,7 +50,7 @@ def test_diff_of_a_store_with_itself_is_empty(base_store):
 def test_diff_reports_exactly_one_edited_value(base_store, tmp_path):
     def edit(root):
         path = root / "values" / "testb2001.csv"
-        path.write_text(path.read_text().replace("whole_body,gfr,,,3.2,", "whole_body,gfr,,,3.4,"))
+        path.write_text(path.read_text().replace("whole_body,gfr,,,,3.2,", "whole_body,gfr,,,,3.4,"))
 
     new = edited_store(tmp_path, edit)
     result = diff_stores(open_store(base_store), open_store(new))
@@ -81,7 +81,7 @@ def test_diff_added_removed_and_sources(base_store, tmp_path):
                        "  title = {Invented source D for the bodyplan tests},\n  year = {2003}\n}\n")
         (root / "values" / "testd2003.csv").write_text(
             (root / "values" / "testa2000.csv").read_text().splitlines()[0] + "\n"
-            "hct,dog,adult,,mixed,,,,blood,hematocrit,,,45,%,none,,,,,,4,,,,measured,Table 1,no,,invented for tests\n")
+            "hct,dog,adult,,mixed,,,,blood,hematocrit,,,,45,%,none,,,,,,4,,,,,measured,Table 1,no,,invented for tests\n")
 
     result = diff_stores(open_store(base_store), open_store(edited_store(tmp_path, edit)))
     assert [s["id"] for s in result.sources_added] == ["testd2003"]
@@ -139,7 +139,7 @@ def test_export_csv_package_validates_with_frictionless(base_store, tmp_path):
     report = frictionless.validate(str(descriptor))  # descriptor, every row against its schema, foreign keys
     assert report.valid, report.flatten(["title", "message"])[:5]
     rows = {task.name: task.stats.get("rows", 0) for task in report.tasks}
-    assert rows["curated_values"] == 17 and rows["species"] == 3 and rows["input_files"] == 12
+    assert rows["curated_values"] == 17 and rows["species"] == 3 and rows["input_files"] == 13
 
 
 def test_export_json_descriptor_is_valid(base_store, tmp_path):

@@ -12,8 +12,8 @@ import pytest
 
 from bodyplan.ingest import CuratedDataError, build, check
 
-HEADER = ("id,species,life_stage,age,sex,strain,class,group,compartment,quantity,part,method,value,unit,uncertainty,"
-          "spread,low,high,statistic,uncertainty_assumed,n,n_counts,body_mass,denominator,basis,locator,verified,"
+HEADER = ("id,species,life_stage,age,sex,strain,class,group,compartment,quantity,part,method,condition,value,unit,uncertainty,"
+          "spread,low,high,statistic,uncertainty_assumed,n,n_counts,body_mass,temperature,denominator,basis,locator,verified,"
           "missing_reason,comment")
 V = "values/testsource2020.csv"
 
@@ -114,7 +114,7 @@ def test_row_with_too_many_fields(fixture_tree):
     path.write_text("".join(lines))
     findings, _, _ = check(fixture_tree)
     assert [str(f) for f in findings.errors] == [
-        f"{V}:3: row: has 30 fields but the header has 29; quote fields that contain commas"]
+        f"{V}:3: row: has 32 fields but the header has 31; quote fields that contain commas"]
 
 
 def test_line_numbers_count_quoted_line_breaks(fixture_tree):

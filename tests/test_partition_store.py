@@ -22,8 +22,8 @@ from bodyplan.api.partition import (PartitionError, composition_coverage, model_
                                     species_composition)
 from bodyplan.schema.model import COMPOSITION as ROLES
 
-HEADER = ("id,species,life_stage,age,sex,strain,class,group,compartment,quantity,part,method,value,unit,uncertainty,"
-          "spread,low,high,statistic,uncertainty_assumed,n,n_counts,body_mass,denominator,basis,locator,verified,"
+HEADER = ("id,species,life_stage,age,sex,strain,class,group,compartment,quantity,part,method,condition,value,unit,uncertainty,"
+          "spread,low,high,statistic,uncertainty_assumed,n,n_counts,body_mass,temperature,denominator,basis,locator,verified,"
           "missing_reason,comment")
 INVENTED = [  # (id, species, compartment, quantity, value, unit)
     ("rat_p_nl", "rat", "plasma", "tissue_neutral_lipid_fraction", 0.0023, "1"),
@@ -69,7 +69,7 @@ def store(tmp_path_factory):
         if len(kept) < len(table):
             with open(path, "w", newline="", encoding="utf-8") as fh:
                 csv.writer(fh, lineterminator="\n").writerows(kept)
-    rows = [f"{i},{sp},adult,,unknown,,,,{comp},{q},,,{v},{u},none,,,,,,,,,,reference,Table 1,no,,invented for tests"
+    rows = [f"{i},{sp},adult,,unknown,,,,{comp},{q},,,,{v},{u},none,,,,,,,,,,,reference,Table 1,no,,invented for tests"
             for i, sp, comp, q, v, u in INVENTED]
     (root / "values" / "kptest2026.csv").write_text("\n".join([HEADER, *rows]) + "\n", encoding="utf-8")
     with open(root / "sources.bib", "a", encoding="utf-8") as fh:

@@ -107,8 +107,8 @@ def test_a_reprint_gives_way_to_its_original(store):
     assert reasons and all("reprints poulin2000" in why for why in reasons.values())
 
 
-HEADER = ("id,species,life_stage,age,sex,strain,class,group,compartment,quantity,part,method,value,unit,uncertainty,"
-          "spread,low,high,statistic,uncertainty_assumed,n,n_counts,body_mass,denominator,basis,locator,verified,"
+HEADER = ("id,species,life_stage,age,sex,strain,class,group,compartment,quantity,part,method,condition,value,unit,uncertainty,"
+          "spread,low,high,statistic,uncertainty_assumed,n,n_counts,body_mass,temperature,denominator,basis,locator,verified,"
           "missing_reason,comment\n")
 
 
@@ -120,17 +120,17 @@ def two_ways(store_from_tree, tmp_path_factory):
     (root / "values").mkdir()
     note = "invented for tests"
     rows = {
-        "typical2026": ["bw,sheep,adult,,female,,,all,whole_body,body_mass,,weighing,50,kg,none,,,,mean,no,10,animals,,,"
+        "typical2026": ["bw,sheep,adult,,female,,,all,whole_body,body_mass,,weighing,,50,kg,none,,,,mean,no,10,animals,,,,"
                         f"measured,Table 1,yes,,{note}"],
         "twoways2026": [
-            f"gfr_abs,sheep,adult,,female,,,all,whole_body,gfr,,inulin_clearance,120,mL/min,none,,,,mean,no,6,animals,,,"
+            f"gfr_abs,sheep,adult,,female,,,all,whole_body,gfr,,inulin_clearance,,120,mL/min,none,,,,mean,no,6,animals,,,,"
             f"measured,Table 2,yes,,{note}: 60 kg sheep; body mass not printed",
-            f"gfr_kg,sheep,adult,,female,,,all,whole_body,gfr,,inulin_clearance,2,mL/min/kg,none,,,,mean,no,6,animals,,,"
+            f"gfr_kg,sheep,adult,,female,,,all,whole_body,gfr,,inulin_clearance,,2,mL/min/kg,none,,,,mean,no,6,animals,,,,"
             f"measured,Table 2,yes,,{note}: the same sheep per kg",
-            f"heart_g,sheep,adult,,female,,,all,heart,tissue_mass,tissue,dissection_weighing,300,g,none,,,,mean,no,6,"
-            f"animals,,,measured,Table 3,yes,,{note}: body mass not printed",
-            f"heart_pc,sheep,adult,,female,,,all,heart,tissue_mass_fraction,tissue,dissection_weighing,0.5,%,none,,,,mean,"
-            f"no,6,animals,,live_body,measured,Table 3,yes,,{note}: the same hearts as % of body mass"]}
+            f"heart_g,sheep,adult,,female,,,all,heart,tissue_mass,tissue,dissection_weighing,,300,g,none,,,,mean,no,6,"
+            f"animals,,,,measured,Table 3,yes,,{note}: body mass not printed",
+            f"heart_pc,sheep,adult,,female,,,all,heart,tissue_mass_fraction,tissue,dissection_weighing,,0.5,%,none,,,,mean,"
+            f"no,6,animals,,,live_body,measured,Table 3,yes,,{note}: the same hearts as % of body mass"]}
     bib = ""
     for key, lines in rows.items():
         (root / "values" / f"{key}.csv").write_text(HEADER + "\n".join(lines) + "\n")

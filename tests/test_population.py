@@ -420,8 +420,8 @@ def test_cardiac_output_follows_the_species_own_power_law(store_from_tree, tmp_p
     rows = [(0.02, 0.80), (0.035, 1.24), (0.05, 1.59)]  # invented for tests
     with open(tree / "values" / "toypop2026b.csv", "a", encoding="utf-8") as fh:
         for i, (mass, co) in enumerate(rows):
-            fh.write(f"co{i},mouse,adult,,mixed,,,mass{i},whole_body,cardiac_output,,,{co},L/h,sd,{co * 0.15:.4f},,,,,"
-                     f"8,,{mass} kg,,measured,Table 2,no,,invented for tests: cardiac output at another body mass\n")
+            fh.write(f"co{i},mouse,adult,,mixed,,,mass{i},whole_body,cardiac_output,,,,{co},L/h,sd,{co * 0.15:.4f},,,,,"
+                     f"8,,{mass} kg,,,measured,Table 2,no,,invented for tests: cardiac output at another body mass\n")
     store = store_from_tree(tree)
     spec = population_spec(store, "mouse", body_mass_cv=0.2)
     co = next(v for v in spec.variables if v.column == "cardiac_output")

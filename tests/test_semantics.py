@@ -528,3 +528,76 @@ def test_lint_keeps_groups_and_baseline_canonical(tree):
     assert (tree / "check_baseline.csv").read_text() == ("file,row_id,code,note\n"
                                                          "values/a.csv,y,duplicate-group,\n"
                                                          "values/b.csv,x,duplicate-group,\n")
+
+
+# --- condition and temperature ---------------------------------------------------------------------------
+
+def test_unknown_condition(tree):
+    line = add(tree, V, id="x", compartment="whole_body", quantity="cardiac_output", value="2", unit="L/min",
+               condition="running")
+    assert errors(tree) == [(f"{V}:{line}: condition: unknown condition 'running'; use an id from "
+                             "vocab/conditions.csv or add it there", "V208")]
+
+
+def test_one_group_under_several_conditions_is_not_a_duplicate(tree):
+    """The same dogs at rest and running: two conditions, not the same measurement twice (no W308)."""
+    add(tree, V, id="rest", compartment="whole_body", quantity="cardiac_output", value="2", unit="L/min", group="g")
+    add(tree, V, id="run", compartment="whole_body", quantity="cardiac_output", value="6", unit="L/min", group="g",
+        condition="exercise")
+    assert warnings(tree, "W308") == []
+
+
+def test_sets_use_animals_at_rest(tree, tmp_path):
+    """Of one group's cardiac output at rest and while running, the set takes the resting row and trace
+    says why the other is left out (invented for tests)."""
+    from bodyplan import open_store
+    from bodyplan.api.resolve import Resolver
+
+    add(tree, V, id="run", compartment="whole_body", quantity="cardiac_output", value="6", unit="L/min", group="g",
+        condition="exercise")
+    add(tree, V, id="rest", compartment="whole_body", quantity="cardiac_output", value="2", unit="L/min", group="g")
+    build(tree, tmp_path / "s.sqlite")
+    resolver = Resolver(open_store(tmp_path / "s.sqlite"), "dog")
+    assert "rest" in [r["row_id"] for r in resolver.rows("cardiac_output", "whole_body")]
+    assert "run" not in [r["row_id"] for r in resolver.rows("cardiac_output", "whole_body")]
+    assert resolver.left_out[("testsource2020", "run")] == ("measured in condition exercise: sets describe "
+                                                            "animals at rest (vocab/conditions.csv)")
+
+
+@pytest.mark.parametrize("text, message", [
+    ("15 kg", "'15 kg' is not a temperature; write e.g. '15 degC' (units: degC, degF, K)"),
+    ("-300 degC", "'-300 degC' is below absolute zero; check the number and its unit"),
+])
+def test_bad_temperature(tree, text, message):
+    line = add(tree, V, id="x", species="rainbow_trout", compartment="whole_body", quantity="body_mass",
+               value="300", unit="g", temperature=text)
+    assert errors(tree) == [(f"{V}:{line}: temperature: {message}", "V225")]
+
+
+def test_temperature_of_a_mammal(tree):
+    line = add(tree, V, id="x", compartment="whole_body", quantity="body_mass", value="12", unit="kg",
+               temperature="20 degC")
+    assert errors(tree) == [(f"{V}:{line}: temperature: '20 degC' is given for a mammal or bird, whose body keeps "
+                             "its own temperature; clear it (heat or cold stress goes in condition)", "V244")]
+
+
+def test_a_set_at_a_temperature_uses_rows_measured_near_it(tree, tmp_path):
+    """Trout body mass at 4, 12 and 13 °C and one row without a temperature (invented for tests): a set at
+    12 °C pools the 12 and 13 °C rows and the silent one, leaves the 4 °C row out and says so."""
+    from bodyplan import open_store
+
+    for i, (grams, temp) in enumerate([(100, "4 degC"), (300, "12 degC"), (500, "13 degC"), (400, "")]):
+        add(tree, V, id=f"bm{i}", species="rainbow_trout", group=f"g{i}", compartment="whole_body",
+            quantity="body_mass", value=str(grams), unit="g", n="10", temperature=temp)
+    build(tree, tmp_path / "s.sqlite")
+    store = open_store(tmp_path / "s.sqlite")
+    warm = store.parameter_set("rainbow_trout", temperature="53.6 degF")  # 12 °C
+    assert warm.temperature == pytest.approx(12) and warm.body_mass.value == pytest.approx(0.4)
+    check = next(c for c in warm.checks if c["check"] == "temperature")
+    assert check["detail"] == ("rows measured at 12–13 °C for a set at 12 °C; 1 row(s) measured more than 3 °C "
+                               "away left out; 1 row(s) state no temperature")
+    everything = store.parameter_set("rainbow_trout")
+    assert everything.body_mass.value == pytest.approx(0.325)
+    assert "ask for one temperature" in next(c for c in everything.checks if c["check"] == "temperature")["detail"]
+    with pytest.raises(BodyplanError, match="keeps its own body temperature"):
+        store.parameter_set("dog", temperature=20)

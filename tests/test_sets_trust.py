@@ -209,3 +209,15 @@ def test_partition_coefficients_travel_with_the_set(store, tmp_path):
     with pytest.raises(ParameterSetError, match="gap|no Kp for"):  # set gaps or Kp gaps: refused either way
         ps.to_sbml()
     assert store.parameter_set("rat", body_mass="0.25 kg").partition == []  # Kp only when asked
+
+
+def test_resting_cardiac_output_of_sockeye_salmon(real_store):
+    """Steinhausen et al. (2008), Table 1: the same sockeye at rest (25.3 mL/min/kg, 15 °C), swimming,
+    at fatigue and in recovery. The set is of fish at rest; the other rows say why they are left out."""
+    ps = real_store.parameter_set("sockeye_salmon", body_mass="1 kg")
+    assert ps.cardiac_output.value == pytest.approx(25.3 * 60 / 1000)
+    from bodyplan.api.resolve import Resolver
+
+    left = Resolver(real_store, "sockeye_salmon").left_out
+    assert {left[("steinhausen2008", f"co_{state}")].split(":")[0] for state in ("swim", "fatigue", "recovery")} == {
+        "measured in condition exercise", "measured in condition exhaustion", "measured in condition recovery"}

@@ -157,3 +157,13 @@ def test_round_trip_reported_canonical_reported(case, value):
     back = ureg.Quantity(stored, form.canonical_unit).to(parse_unit(unit).units).magnitude \
         / parse_unit(unit).magnitude
     assert math.isclose(back, value, rel_tol=1e-12)
+
+
+@given(st.floats(min_value=-50, max_value=60, allow_nan=False).map(lambda c: round(c, 3)))
+def test_temperature_in_any_unit_reads_as_celsius(celsius):
+    """°F = °C × 9/5 + 32 and K = °C + 273.15 (common practice, no source): one temperature three ways."""
+    from bodyplan.units import temperature_celsius
+
+    assert temperature_celsius(f"{celsius} degC") == pytest.approx(celsius, abs=1e-9)
+    assert temperature_celsius(f"{celsius * 9 / 5 + 32!r} degF") == pytest.approx(celsius, abs=1e-9)
+    assert temperature_celsius(f"{celsius + 273.15!r} K") == pytest.approx(celsius, abs=1e-9)

@@ -298,3 +298,24 @@ def to_quantity(text_or_quantity, default_unit: str | None = None):
     if not math.isfinite(float(q.to_base_units().magnitude)):
         raise UnitError(f"{text_or_quantity!r} is too large to compute with; check the number")
     return q
+
+
+TEMPERATURE_UNITS = ("degC", "degF", "K")  # units a temperature may be written in (offset units read alone)
+
+
+def temperature_celsius(text) -> float:
+    """Read a water or air temperature ('15 degC', '-1.5 degC', '59 degF', '288.15 K') in °C.
+
+    A temperature may be below zero, so a leading sign is allowed here (amounts elsewhere have none);
+    the unit stands alone, since pint cannot multiply an offset unit such as degC by a number.
+    """
+    raw = str(text).strip()
+    sign = -1.0 if raw[:1] in ("-", "−") else 1.0
+    parsed = parse_quantity_text(raw.lstrip("-−").strip())
+    unit = parsed.unit.strip()
+    if unit not in TEMPERATURE_UNITS:
+        raise UnitError(f"{raw!r} is not a temperature; write e.g. '15 degC' (units: {', '.join(TEMPERATURE_UNITS)})")
+    celsius = float(registry().Quantity(sign * parsed.number, unit).to("degC").magnitude)
+    if celsius < -273.15:
+        raise UnitError(f"{raw!r} is below absolute zero; check the number and its unit")
+    return celsius

@@ -6,6 +6,8 @@ import sys
 
 import click
 
+from ..schema.model import TEMPERATURE_BAND
+
 from ..output import choose_ids, force_option, guard_out, renamed_option, set_choice_options, store_option, to_json
 from .partition import METHOD_CHOICES, kp_method_option
 
@@ -33,7 +35,8 @@ def render_table(ps, file=None) -> None:
     console = Console(file=file or sys.stdout, width=None if (file or sys.stdout).isatty() else 160)
     bw, co = d["body_mass"], d["cardiac_output"]
     title = (f"{ps.species}, {ps.life_stage}{', ' + ps.sex if ps.sex else ''}: {ps.layout.name} layout, "
-             f"body mass {_value_text(bw['value'])} kg ({bw['origin']})")
+             f"body mass {_value_text(bw['value'])} kg ({bw['origin']})"
+             + (f", at {ps.temperature:g} °C" if ps.temperature is not None else ""))
     table = Table(title=title, title_justify="left")
     for name, justify in (("compartment", "left"), (f"volume ({d['compartments'][0]['volume']['unit']})", "right"),
                           ("how", "left"), (f"blood flow ({co['unit']})", "right"), ("how", "left"),
@@ -101,6 +104,9 @@ OUT_SUFFIXES = {"json": (".json",), "csv": (".csv",), "sbml": (".xml", ".sbml"),
 @click.option("--format", "fmt", type=click.Choice(["table", "csv", "json", "sbml"]), default="table",
               show_default=True, help="Output format.")
 @set_choice_options
+@click.option("--temperature", default=None, metavar="TEMP",
+              help='Fish, reptiles, amphibians: the water or air temperature, e.g. "12 degC"; uses rows measured '
+                   f"within {TEMPERATURE_BAND:g} °C of it (and rows that state none).")
 @click.option("--allow-gaps", is_flag=True, help="SBML: export a set with gaps, each marked and set to NaN.")
 @click.option("--compound", "compound_file", type=click.Path(dir_okay=False, exists=True), default=None,
               help="A compound file (TOML or CSV, as for bodyplan kp): add Kp of every compartment to the set.")
@@ -111,7 +117,7 @@ OUT_SUFFIXES = {"json": (".json",), "csv": (".csv",), "sbml": (".xml", ".sbml"),
 @force_option
 @store_option
 def params_cmd(species, life_stage, sex, body_weight, layout, fill, units, fmt, stage_fallback, verified_only,
-               animal_class, allow_gaps, compound_file, kp_method, kp_borrow_from, out, force, store_path):
+               animal_class, temperature, allow_gaps, compound_file, kp_method, kp_borrow_from, out, force, store_path):
     """A model-ready parameter set for SPECIES, scaled to a body mass, every gap marked."""
     from pathlib import Path
 
@@ -130,7 +136,7 @@ def params_cmd(species, life_stage, sex, body_weight, layout, fill, units, fmt, 
     life_stage = choose_ids(store, "life_stages", life_stage, "life stage", "--life-stage")
     ps = store.parameter_set(species, life_stage=life_stage, sex=sex, body_mass=body_weight, layout=layout,
                              fill=fill, units=units, stage_fallback=stage_fallback, verified_only=verified_only,
-                             animal_class=animal_class)
+                             animal_class=animal_class, temperature=temperature)
     if compound_file:
         ps.add_partition_coefficients(store, compound_file, method=METHOD_CHOICES[kp_method],
                                       borrow_from=kp_borrow_from)
