@@ -21,11 +21,12 @@ def store(real_store):
 
 
 def test_absolute_flows_are_shares_of_their_own_source_cardiac_output(store):
-    """Davies & Morris (1993) give the dog's heart flow (54 mL/min) beside the same dog's cardiac output
-    (1200 mL/min): the share is 54/1200, not 54 over the species' pooled cardiac output."""
-    resolved = resolve_parameter(store, "dog", "heart", "blood_flow")
+    """Davies & Morris (1993) give the rhesus monkey's heart flow (60 mL/min) beside the same monkey's cardiac
+    output (1086 mL/min): the share is 60/1086, not 60 over the species' pooled cardiac output (which another
+    source moves). (The dog's pair of that table now gives way to read rows.)"""
+    resolved = resolve_parameter(store, "rhesus_macaque", "heart", "blood_flow")
     [row] = [r for r in resolved.rows if r["source_id"] == "davies1993"]
-    assert row["_value"] == pytest.approx(54 / 1200, rel=1e-12)
+    assert row["_value"] == pytest.approx(60 / 1086, rel=1e-12)
     assert any("own source's cardiac output" in note for note in resolved.notes)
 
 
