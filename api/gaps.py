@@ -5,7 +5,8 @@ Three views, all plain DataFrames:
   hematocrit, and each model compartment's volume and blood flow), counting the curated rows that
   can feed it (its routes on the stored compartments it lumps and their parts, which parameter sets
   sum when the whole has no rows) and saying how it stands (see STATES); a model compartment lumping
-  several stored ones stands as its worst part.
+  several stored ones stands as its worst part. Rows a set would not count (a piece of the organ, animals
+  exercising, a method not accepted: api/rows.py) cover nothing and are counted apart (n_set_aside).
 - readiness: the share of a parameter set's numbers (fill="none") that are not gaps.
 - most_wanted: which single slot, once curated, closes the most gaps and readies the most species;
   what a gap waits on is read from the parameter set's own dependencies.
@@ -84,8 +85,8 @@ class GapReport:
 
 
 def _rows(store, species: list[str] | None) -> pd.DataFrame:
-    sql = ("SELECT species_id, life_stage_id, compartment_id, quantity_id, normalisation, source_id, verified, "
-           "uncertainty, value IS NOT NULL AS has_value FROM curated_values")
+    sql = ("SELECT species_id, life_stage_id, compartment_id, quantity_id, normalisation, source_id, row_id, "
+           "verified, uncertainty, value IS NOT NULL AS has_value FROM curated_values")
     params: list = []
     if species:
         sql += f" WHERE species_id IN ({', '.join('?' for _ in species)})"
@@ -128,12 +129,15 @@ def coverage_table(store, layout, species: list[str], life_stage: str) -> tuple[
     owner = {(c, q): p.id for p in layout_slots for c in p.stored for q in p.quantities}
     rows["slot"] = [owner.get(cq) for cq in zip(rows["compartment_id"], rows["quantity_id"])]
     rows = rows[rows["slot"].notna()]
+    rows = rows.assign(set_aside=_set_aside(store, rows, keys))
     groups = {key: part for key, part in rows.groupby(["species_id", "life_stage_id", "slot"])}
     empty = rows.iloc[0:0]
     records = []
     for sp, st in keys:
         for p in layout_slots:
             both = groups.get((sp, st, p.id), empty)
+            aside = both[both["set_aside"]]  # a piece, another condition, a method not accepted …: trace says
+            both = both[~both["set_aside"]]
             sel, gone = both[both["has_value"]], both[~both["has_value"]]
             state, lacking = cell_state(sel), []
             named = layout.compartments.get(p.compartment, [])
@@ -150,9 +154,22 @@ def coverage_table(store, layout, species: list[str], life_stage: str) -> tuple[
                 "n_sources": sel["source_id"].nunique(), "n_verified": int(sel["verified"].sum()),
                 "n_with_uncertainty": int(sel["has_uncertainty"].sum()),
                 "n_absolute": int((~sel["relative"]).sum()), "n_reported_missing": len(gone),
+                "n_set_aside": len(aside),
                 "sources": "; ".join(sorted(set(sel["source_id"]))),
             })
     return pd.DataFrame.from_records(records), layout_slots
+
+
+def _set_aside(store, rows: pd.DataFrame, keys) -> list[bool]:
+    """Rows a parameter set would not count (api/rows.py: a piece of the organ, a condition other than rest,
+    a method not accepted here, a reprint, a share without its source's ratio): they cover nothing."""
+    from .rows import CountedRows
+
+    out = set()
+    for sp, st in keys:
+        out |= {(sp, st, *key) for key, why in CountedRows(store, sp, st).left_out.items()
+                if not why.startswith("the same animals")}  # the same animals counted by another row still cover
+    return [key in out for key in zip(rows["species_id"], rows["life_stage_id"], rows["source_id"], rows["row_id"])]
 
 
 def _with_parts(compartment: str, parts: dict[str, list[str]], named) -> set[str]:
