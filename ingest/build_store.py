@@ -76,8 +76,9 @@ def format_citation(fields: dict) -> str:
     detail = where
     if fields.get("volume"):
         detail += f" {fields['volume']}"
-    if fields.get("pages"):
-        detail += f":{fields['pages'].replace('--', '–')}"
+    if fields.get("pages"):  # "Journal 12:3–9"; without a volume "Journal, 3–9"; alone "pp. 3–9"
+        pages = fields["pages"].replace("--", "–")
+        detail += f":{pages}" if fields.get("volume") else f", {pages}" if detail else f"pp. {pages}"
     title = _without_braces(fields.get("title", "")).rstrip(".")
     text = f"{who} ({fields.get('year', 'n.d.')}). {title}. {detail}".strip()
     return text.rstrip(".") + "."

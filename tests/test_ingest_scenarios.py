@@ -180,3 +180,18 @@ def test_scenario_code(scenario, scenario_tree):
     kind = "bad" if scenario in ERRORS else "warn"
     findings, _, _ = check(scenario_tree(f"{kind}/{scenario}"))
     assert [f.code for f in findings.sorted()] == [SCENARIO_CODES[scenario]]
+
+
+@pytest.mark.parametrize("fields, text", [
+    ({"author": "Tester, A. and Other, B.", "year": "1990", "title": "A study", "journal": "J Test",
+      "volume": "12", "pages": "3--9"}, "Tester & Other (1990). A study. J Test 12:3–9."),
+    ({"author": "Tester, A.", "year": "1990", "title": "A study", "journal": "J Test", "pages": "3--9"},
+     "Tester (1990). A study. J Test, 3–9."),
+    ({"author": "Tester, A.", "year": "1990", "title": "A study", "pages": "316--322"},
+     "Tester (1990). A study. pp. 316–322."),
+])
+def test_citation_with_and_without_volume(fields, text):
+    """Pages follow the volume after a colon; without a volume there is no stray colon (invented entries)."""
+    from bodyplan.ingest.build_store import format_citation
+
+    assert format_citation(fields) == text

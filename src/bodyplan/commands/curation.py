@@ -99,7 +99,10 @@ def _combination_line(c: dict) -> str:
         f", sd {_short_number(c['sd'])}" if c.get("sd") is not None else ""
     kind = "95 % prediction interval" if "prediction interval" in (c["method"] or "") else "range of study values"
     span = f", {kind} {_short_number(c['low'])}..{_short_number(c['high'])}" if c.get("low") is not None else ""
-    studies = f"{c['n_studies']} stud{'y' if c['n_studies'] == 1 else 'ies'}"
+    n, k = c["n_studies"], len(c.get("sources") or ())
+    # independent groups of one source pool as studies do, but are not more publications
+    studies = f"{n} independent groups from {k} source{'s' if k > 1 else ''}" if 0 < k < n else \
+        f"{n} stud{'y' if n == 1 else 'ies'}"
     return f"{head} = {_short_number(c['value'])} {c['unit']}{spread}{span}; {c['method']}; {studies}; rows used:"
 
 
