@@ -8,6 +8,7 @@ from pathlib import Path
 import click
 
 from ..errors import OutputError
+from ..schema.model import LIVER
 from ..output import (choose, choose_ids, emit, force_option, format_option, guard_out_dir, renamed_option,
                       store_option, to_json)
 from .store_commands import data_dir_or_bundled as _data_dir
@@ -92,7 +93,10 @@ def _trace_table(rows):
 
 
 def _combination_line(c: dict) -> str:
-    head = f"parameter set: {c['compartment']} {c['parameter']}"
+    head = f"combined: {c['compartment']} {c['parameter']}"
+    if c["compartment"] == LIVER and c["parameter"] == "blood_flow":  # the layout's liver keeps its arterial share
+        head += (" (all the liver's inflow; a set's liver compartment takes the hepatic artery, this less the "
+                 "portal organs' flows)")
     if c["value"] is None:
         return f"{head}: gap ({c['reason']})"
     spread = f", se {_short_number(c['se'])}" if c.get("se") is not None else \
