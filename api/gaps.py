@@ -18,8 +18,9 @@ from dataclasses import dataclass
 
 import pandas as pd
 
-from ..schema.model import SCALED_SHARES, Slot, slots, sub_parts
+from ..schema.model import SCALED_SHARES, Slot, default_layout, slots, sub_parts
 
+NOT_IN_LAYOUT = "not in its layout"  # a slot the species' own layout does not have (lungs of a fish)
 VERIFIED_MAJORITY = 0.5  # share of a number's weight on verified rows for it to count as verified
 # How a coverage cell stands, from worst to best; the index is the cell's level in the heatmap.
 STATES = ["absent", "fraction only", "no uncertainty", "unverified", "verified", "several sources"]
@@ -67,9 +68,12 @@ class GapReport:
         return ranked.reset_index(drop=True).assign(rank=lambda f: f.index + 1)
 
     def matrix(self, what: str = "state") -> pd.DataFrame:
-        """Species (and stage) × slot, one of: state, level, n_values, n_sources, mark."""
+        """Species (and stage) × slot, one of: state, level, n_values, n_sources, mark; a slot outside a
+        species' own layout (a fish's lungs) is NOT_IN_LAYOUT (state), "" (mark) or missing."""
         wide = self.coverage.pivot(index=["species", "life_stage"], columns="slot", values=what)
-        return wide[[p.id for p in self.slots]]
+        wide = wide.reindex(columns=[p.id for p in self.slots])
+        fill = {"state": NOT_IN_LAYOUT, "mark": ""}.get(what)
+        return wide if fill is None else wide.fillna(fill)
 
     def to_dict(self) -> dict:
         import json
@@ -258,11 +262,15 @@ def most_wanted_table(tables: dict, coverage: pd.DataFrame, params: list[Slot]) 
     return frame[frame["species_needing"] > 0].reset_index(drop=True), waits
 
 
-def gap_report(store, species=None, life_stage: str = "adult", layout="whole_body") -> GapReport:
-    """Coverage, readiness and most-wanted slots for the species asked for (default: all in the store)."""
+BY_SPECIES = "each species' own"  # the report's layout name when every species has its default layout
+
+
+def gap_report(store, species=None, life_stage: str = "adult", layout=None) -> GapReport:
+    """Coverage, readiness and most-wanted slots for the species asked for (default: all in the store).
+    Without a layout each species is read in its own default one (fish: fish, with gills and no lungs);
+    a slot outside a species' layout has no cell for it."""
     from .layouts import Layout, load_layout
 
-    lay = layout if isinstance(layout, Layout) else load_layout(layout, set(store.ids("compartments")))
     if species is None or len(species) == 0:
         species = store.ids("species")
     else:
@@ -271,9 +279,34 @@ def gap_report(store, species=None, life_stage: str = "adult", layout="whole_bod
             store.require("species", sp, "species")
     if life_stage != "all":
         store.require("life_stages", life_stage, "life stage")
-    coverage, params = coverage_table(store, lay, species, life_stage)
-    keys = list(dict.fromkeys(zip(coverage["species"], coverage["life_stage"])))
-    readiness, tables = readiness_table(store, lay, keys)
+    known = set(store.ids("compartments"))
+    if layout is None:
+        taxon = dict(store.query("SELECT id, taxon_class FROM species"))
+        by_layout: dict[str, list[str]] = {}
+        for sp in species:
+            by_layout.setdefault(default_layout(taxon[sp]), []).append(sp)
+        name = BY_SPECIES if len(by_layout) > 1 else next(iter(by_layout))
+        groups = [(load_layout(lay, known), group) for lay, group in by_layout.items()]
+    else:
+        lay = layout if isinstance(layout, Layout) else load_layout(layout, known)
+        groups, name = [(lay, species)], lay.name
+    coverages, readinesses, tables, params = [], [], {}, {}
+    for lay, group in groups:
+        coverage, slots_of = coverage_table(store, lay, group, life_stage)
+        keys = list(dict.fromkeys(zip(coverage["species"], coverage["life_stage"])))
+        readiness, of_layout = readiness_table(store, lay, keys)
+        coverages.append(coverage)
+        readinesses.append(readiness)
+        tables.update(of_layout)
+        params.update({p.id: p for p in slots_of if p.id not in params})
+    order = {sp: i for i, sp in enumerate(species)}  # the species in the order asked for
+    coverage = pd.concat(coverages, ignore_index=True)
+    coverage = coverage.iloc[sorted(range(len(coverage)), key=lambda i: order[coverage["species"].iat[i]])]
+    coverage = coverage.reset_index(drop=True)
+    readiness = pd.concat(readinesses, ignore_index=True)
+    readiness = readiness.sort_values("species", key=lambda c: c.map(order), kind="stable").reset_index(drop=True)
+    keys = list(zip(readiness["species"], readiness["life_stage"]))
+    params = list(params.values())
     covered = coverage[coverage["n_values"] > 0].groupby(["species", "life_stage"]).size()
     readiness["covered_slots"] = [int(covered.get(k, 0)) for k in keys]
     most_wanted, waits = most_wanted_table(tables, coverage, params)
@@ -285,4 +318,4 @@ def gap_report(store, species=None, life_stage: str = "adult", layout="whole_bod
 
     composition = composition_readiness(store, list(dict.fromkeys(coverage["species"])),
                                         "adult" if life_stage == "all" else life_stage)
-    return GapReport(lay.name, life_stage, params, coverage, readiness, most_wanted, sources, composition)
+    return GapReport(name, life_stage, params, coverage, readiness, most_wanted, sources, composition)

@@ -111,7 +111,7 @@ class Store:
 
         return parameter_set(self, species, **options)
 
-    def gap_report(self, species=None, *, life_stage: str = "adult", layout="whole_body"):
+    def gap_report(self, species=None, *, life_stage: str = "adult", layout=None):
         """Coverage, readiness and most-wanted parameters; see :func:`bodyplan.api.gaps.gap_report`."""
         from .gaps import gap_report
 

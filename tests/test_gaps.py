@@ -38,7 +38,7 @@ def store(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def report(store):
-    return gap_report(store)
+    return gap_report(store, layout="whole_body")
 
 
 def sql_count(store, species, stage, compartments, quantities):
@@ -335,6 +335,26 @@ def test_store_method_and_subsets_match_the_full_report(store, report):
                                   full.sort_values(["species", "slot"]).reset_index(drop=True))
     ready = report.readiness.set_index("species").loc[few, ["readiness", "waits_on"]]
     assert same.readiness.set_index("species").loc[few, ["readiness", "waits_on"]].equals(ready)
+
+
+def test_each_species_is_read_in_its_own_layout_by_default(store):
+    """Without a layout, fish are read in the fish layout (gills, no lungs) and mammals in whole_body:
+    a trout's readiness does not count lungs it lacks, and the matrix says which slots are not its own."""
+    from bodyplan.api.gaps import BY_SPECIES, NOT_IN_LAYOUT
+
+    both = gap_report(store, ["rat", "rainbow_trout"])
+    assert both.layout == BY_SPECIES
+    fish, mammal = slots(load_layout("fish")), slots(load_layout("whole_body"))
+    cells = both.coverage.groupby("species")["slot"].apply(list).to_dict()
+    assert cells["rainbow_trout"] == [p.id for p in fish] and cells["rat"] == [p.id for p in mammal]
+    states = both.matrix("state")
+    assert states.loc[("rainbow_trout", "adult"), "lung.volume"] == NOT_IN_LAYOUT
+    assert states.loc[("rat", "adult"), "gills.blood_flow"] == NOT_IN_LAYOUT
+    total = both.readiness.set_index("species")["total"]
+    ps = store.parameter_set("rainbow_trout")
+    assert total["rainbow_trout"] == sum(1 for c, _, cell in ps.cells()
+                                         if c != "rest_of_body" and cell.origin != "not_applicable")
+    assert gap_report(store, ["rat"]).layout == "whole_body"
 
 
 def test_what_each_species_waits_on(report):

@@ -35,7 +35,9 @@ def _write_report(report, out: str, store) -> str:
 @click.option("--species", "species", multiple=True, help="Species id (repeatable; default: every species).")
 @renamed_option("--life-stage", "--stage", "stage", default="adult", show_default=True,
                 help="Life stage, or 'all' for every stage with data (plus adult for every species).")
-@click.option("--layout", default="whole_body", show_default=True, help="Layout name (whole_body, rich_slow) or a .toml file.")
+@click.option("--layout", default=None,
+              help="Layout name (whole_body, rich_slow, fish) or a .toml file (default: each species' own: fish "
+                   "take the fish layout, the others whole_body).")
 @format_option()
 @click.option("--out", type=click.Path(dir_okay=False), default=None,
               help="Also write the report: FILE.html (self-contained) or FILE.png (the heatmap).")

@@ -10,9 +10,9 @@ from __future__ import annotations
 from pathlib import Path
 
 from . import figure_png
-from ..api.gaps import STATES, GapReport
+from ..api.gaps import NOT_IN_LAYOUT, STATES, GapReport
 
-HATCH = {"fraction only": "////"}
+HATCH = {"fraction only": "////", NOT_IN_LAYOUT: "xx"}
 
 
 def state_colours() -> dict[str, tuple]:
@@ -21,7 +21,7 @@ def state_colours() -> dict[str, tuple]:
 
     cmap = colormaps["cividis"]
     shades = [cmap(x) for x in (0.97, 0.76, 0.52, 0.28, 0.0)]
-    return {"absent": (1.0, 1.0, 1.0, 1.0), **dict(zip(STATES[1:], shades))}
+    return {"absent": (1.0, 1.0, 1.0, 1.0), **dict(zip(STATES[1:], shades)), NOT_IN_LAYOUT: (0.88, 0.88, 0.88, 1.0)}
 
 
 def _text_colour(rgba) -> str:
@@ -86,7 +86,8 @@ def heatmap_figure(report: GapReport):
     fig.suptitle(f"Curated coverage, layout {report.layout}, {stage}  (row label: readiness)", fontsize=12,
                  x=0.01, ha="left")
 
-    handles = [Patch(facecolor=colours[s], edgecolor="0.4", hatch=HATCH.get(s), label=s) for s in STATES]
+    shown = STATES + ([NOT_IN_LAYOUT] if (states == NOT_IN_LAYOUT).any().any() else [])
+    handles = [Patch(facecolor=colours[s], edgecolor="0.4", hatch=HATCH.get(s), label=s) for s in shown]
     footer = 1.55  # inches below the grid for the legend and the key to the cell text
     legend = fig.legend(handles=handles, loc="lower left", ncol=6, fontsize=9.5, frameon=False,
                         bbox_to_anchor=(0.01, 0.78 / height), title="cell state", title_fontsize=9.5,
