@@ -13,7 +13,7 @@ from collections import defaultdict
 from functools import cached_property
 
 from ..schema.descriptors import DENOMINATORS
-from ..schema.model import TEMPERATURE_BAND, body_plan, stands_for_the_whole
+from ..schema.model import TEMPERATURE_BAND, body_plan, parameter_of, stands_for_the_whole
 
 ROW_COLUMNS = ("source_id, row_id, compartment_id, quantity_id, normalisation, value_canonical, sd_canonical, "
                "n, subject_body_mass_kg, sex, strain, age, verified, file, line, group_id, part_id, method_id, "
@@ -59,6 +59,7 @@ class CountedRows:
                 self.left_out[(r["source_id"], r["row_id"])] = why
             else:
                 kept.append(r)
+        kept = self._awake_first(kept)
         by_measure: dict[tuple, list[dict]] = defaultdict(list)
         for r in kept:  # one quantity of one compartment, however it is normalised (mL/min or mL/min/kg)
             by_measure[(r["source_id"], r["quantity_id"], r["compartment_id"])].append(r)
@@ -99,7 +100,26 @@ class CountedRows:
 
     @cached_property
     def _in_sets(self) -> frozenset[str]:
-        return frozenset(r[0] for r in self.store.query("SELECT id FROM conditions WHERE in_sets = 'yes'"))
+        return frozenset(r[0] for r in self.store.query("SELECT id FROM conditions WHERE in_sets <> 'no'"))
+
+    @cached_property
+    def _fallback(self) -> frozenset[str]:
+        return frozenset(r[0] for r in self.store.query("SELECT id FROM conditions WHERE in_sets = 'fallback'"))
+
+    def _awake_first(self, rows: list[dict]) -> list[dict]:
+        """Rows of a fallback condition (anaesthesia) give way, parameter by parameter, to rows of animals
+        at rest: an anaesthetised dog's kidney flow is not pooled with a conscious one's."""
+        what = lambda r: (parameter_of(r["quantity_id"]) or r["quantity_id"], r["compartment_id"])  # noqa: E731
+        at_rest = {what(r) for r in rows
+                   if r["condition_id"] not in self._fallback}
+        kept = []
+        for r in rows:
+            if r["condition_id"] in self._fallback and what(r) in at_rest:
+                self.left_out[(r["source_id"], r["row_id"])] = (f"measured in condition {r['condition_id']}: rows of "
+                                                                "animals at rest exist (vocab/conditions.csv)")
+            else:
+                kept.append(r)
+        return kept
 
     @cached_property
     def _methods(self) -> dict[str, dict]:

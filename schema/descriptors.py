@@ -204,8 +204,9 @@ CONDITIONS = {
     "fields": [
         field("id", description="Condition id.", required=True, pattern=ID),
         field("label", description="Name in words.", required=True),
-        field("in_sets", description="yes if parameter sets (animals at rest) use rows of this condition.",
-              required=True, enum=YES_NO),
+        field("in_sets", description="yes if parameter sets (animals at rest) use rows of this condition; "
+              "fallback if they use them only where no row of a yes condition gives the same parameter; no if never.",
+              required=True, enum=["yes", "fallback", "no"]),
         field("reason", description="Why: a published source (authors, year) or 'common practice, no source'.",
               required=True),
         field("description", description="What the condition covers."),

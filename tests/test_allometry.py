@@ -193,11 +193,10 @@ def _fit_or_skip(store, quantity, compartment=None):
 # (from memory); the test asks that 0.81 lies in the fit's 95 % CI. Lindstedt & Schaeffer 2002
 # (Lab Anim 36:1) give "about 0.75" for volume rates in general (from memory), not an estimate for
 # cardiac output alone; the test reads "about" as 0.75 ± 0.05 and asks that this range overlaps the CI.
-# With 8 mammal species (1294 rows) b was 0.839 [0.762, 0.915]. With 12 (1975 rows; cat, horse and cattle
-# added) b = 0.858 [0.801, 0.916], R² 0.991: 0.81 inside the CI, and the CI no longer reaches 0.80.
-# Dropping the horse (one abstract of trained Thoroughbreds) and the cattle (one recalled row) gives 0.829
-# [0.746, 0.912]: the steeper slope is in the data, not one point. The general 3/4 is marked as a known
-# disagreement (strict: the test fails the day the data meet it again, so the mark is removed then).
+# With 8 mammal species (1294 rows) b was 0.839 [0.762, 0.915]. With 12 (1993 rows; cat, horse and cattle
+# added, anaesthetised mice and rats giving way to conscious ones) b = 0.844 [0.782, 0.906], R² 0.989:
+# 0.81 inside the CI, and the CI just reaches 0.80. Counting the anaesthetised rows with the conscious
+# ones had given 0.858 [0.801, 0.916], outside 0.75 ± 0.05.
 def test_cardiac_output_exponent_agrees_with_stahl_1967(real_store):
     """Depends on the bundled data."""
     fit = _fit_or_skip(real_store, "cardiac_output").fit
@@ -205,8 +204,6 @@ def test_cardiac_output_exponent_agrees_with_stahl_1967(real_store):
         f"Stahl 1967 J Appl Physiol 22:453: 0.81 outside the 95 % CI {fit.b_ci} (b = {fit.b:.3f}, {fit.labels})")
 
 
-@pytest.mark.xfail(strict=True, reason="the stored mammals' cardiac output scales with b = 0.86 [0.80, 0.92], "
-                   "steeper than the general 3/4 of volume rates")
 def test_cardiac_output_exponent_near_lindstedt_schaeffer_2002(real_store):
     """Depends on the bundled data."""
     fit = _fit_or_skip(real_store, "cardiac_output").fit

@@ -601,3 +601,28 @@ def test_a_set_at_a_temperature_uses_rows_measured_near_it(tree, tmp_path):
     assert "ask for one temperature" in next(c for c in everything.checks if c["check"] == "temperature")["detail"]
     with pytest.raises(BodyplanError, match="keeps its own body temperature"):
         store.parameter_set("dog", temperature=20)
+
+
+def test_anaesthetised_rows_give_way_to_conscious_ones(tree, tmp_path):
+    """Cardiac output of anaesthetised dogs counts only where no conscious dogs' value exists; their heart
+    mass, which no conscious dog's row gives, counts (invented for tests)."""
+    from bodyplan import open_store
+    from bodyplan.api.resolve import Resolver
+
+    add(tree, V, id="co_an", compartment="whole_body", quantity="cardiac_output", value="1.5", unit="L/min",
+        group="a", condition="anaesthesia")
+    add(tree, V, id="heart_an", compartment="heart", quantity="tissue_mass", value="0.1", unit="kg", group="a",
+        condition="anaesthesia", body_mass="10 kg")
+    build(tree, tmp_path / "with.sqlite")
+    resolver = Resolver(open_store(tmp_path / "with.sqlite"), "dog")
+    used = {r["row_id"] for key in (("cardiac_output", "whole_body"), ("tissue_mass", "heart"))
+            for r in resolver.rows(*key)}
+    assert "co_an" not in used and "heart_an" in used  # the good tree holds a conscious dog's cardiac output
+    assert resolver.left_out[("testsource2020", "co_an")] == ("measured in condition anaesthesia: rows of animals "
+                                                              "at rest exist (vocab/conditions.csv)")
+    for path in (tree / "values").glob("*.csv"):  # without the conscious rows the anaesthetised one counts
+        lines = path.read_text().splitlines(keepends=True)
+        path.write_text("".join(l for l in lines if ",cardiac_output," not in l or ",anaesthesia," in l))
+    build(tree, tmp_path / "without.sqlite")
+    resolver = Resolver(open_store(tmp_path / "without.sqlite"), "dog")
+    assert [r["row_id"] for r in resolver.rows("cardiac_output", "whole_body")] == ["co_an"]
