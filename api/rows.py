@@ -108,13 +108,14 @@ class CountedRows:
 
     def _awake_first(self, rows: list[dict]) -> list[dict]:
         """Rows of a fallback condition (anaesthesia) give way, parameter by parameter, to rows of animals
-        at rest: an anaesthetised dog's kidney flow is not pooled with a conscious one's."""
+        at rest: an anaesthetised dog's kidney flow is not pooled with a conscious one's. A row read in its
+        source gives way only to read ones: a recalled number is no evidence against a read one."""
         what = lambda r: (parameter_of(r["quantity_id"]) or r["quantity_id"], r["compartment_id"])  # noqa: E731
-        at_rest = {what(r) for r in rows
-                   if r["condition_id"] not in self._fallback}
+        at_rest = {(what(r), bool(r["verified"])) for r in rows if r["condition_id"] not in self._fallback}
         kept = []
         for r in rows:
-            if r["condition_id"] in self._fallback and what(r) in at_rest:
+            if r["condition_id"] in self._fallback and ((what(r), True) in at_rest or
+                                                        (not r["verified"] and (what(r), False) in at_rest)):
                 self.left_out[(r["source_id"], r["row_id"])] = (f"measured in condition {r['condition_id']}: rows of "
                                                                 "animals at rest exist (vocab/conditions.csv)")
             else:

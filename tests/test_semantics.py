@@ -620,6 +620,12 @@ def test_anaesthetised_rows_give_way_to_conscious_ones(tree, tmp_path):
     assert "co_an" not in used and "heart_an" in used  # the good tree holds a conscious dog's cardiac output
     assert resolver.left_out[("testsource2020", "co_an")] == ("measured in condition anaesthesia: rows of animals "
                                                               "at rest exist (vocab/conditions.csv)")
+    add(tree, W, id="co_read", compartment="whole_body", quantity="cardiac_output", value="1.6", unit="L/min",
+        condition="anaesthesia", verified="yes")
+    build(tree, tmp_path / "read.sqlite")  # a row read in its source does not give way to unread ones
+    resolver = Resolver(open_store(tmp_path / "read.sqlite"), "dog")
+    assert "co_read" in {r["row_id"] for r in resolver.rows("cardiac_output", "whole_body")}
+    (tree / W).unlink()
     for path in (tree / "values").glob("*.csv"):  # without the conscious rows the anaesthetised one counts
         lines = path.read_text().splitlines(keepends=True)
         path.write_text("".join(l for l in lines if ",cardiac_output," not in l or ",anaesthesia," in l))
