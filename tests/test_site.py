@@ -568,3 +568,15 @@ def test_filter_operators_are_datasettes():
     from datasette.filters import Filters
 
     assert FILTER_OPS == {f.key for f in Filters._filters}
+
+
+def test_value_pages_say_the_animals_condition_and_temperature(store, site):
+    """Steinhausen et al. (2008), Table 1: the same sockeye swimming at 15 °C; both value pages say so."""
+    conn = sqlite3.connect(store)
+    found = conn.execute("SELECT id FROM curated_values WHERE source_id = 'steinhausen2008' AND row_id = 'co_swim'"
+                         ).fetchone()
+    if found is None:
+        pytest.skip("bundled data: steinhausen2008 not in this store")
+    assert "<dt>condition</dt><dd>exercise, at 15 °C</dd>" in get(site, f"/values/{found[0]}").text
+    assert "· condition exercise, at 15 °C ·" in get(make_datasette(store, pages="none"),
+                                                   f"/bodyplan/curated_values/{found[0]}").text

@@ -501,7 +501,11 @@ def extra_template_vars(template, database, table, view_name, request, datasette
         value = {k: row[k] for k in ("species_id", "life_stage_id", "sex", "quantity_id", "compartment_id",
                                       "basis", "citation", "locator")}
         value = {k.removesuffix("_id"): v for k, v in value.items()}
+        state = [] if row["condition_id"] == "rest" else [f"condition {row['condition_id']}"]
+        if row["temperature_c"] is not None:
+            state.append(f"at {row['temperature_c']:g} °C")
         value.update(shown=describe_value(row) or "", verified=_verified(row["verified"]), id=row["id"],
+                     state=", ".join(state),
                      source_href=f"{datasette.urls.table(database, 'sources')}/{tilde_encode(row['source_id'])}")
         return dict(extra, bodyplan_value=value)
 
