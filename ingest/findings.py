@@ -28,6 +28,7 @@ CODES: dict[str, str] = {
     "R110": "A vocabulary file or sources.bib is missing. Every curated tree needs them.",
     "R111": "The BibTeX file repeats an entry key. Keep one entry per key.",
     "R112": "A BibTeX block cannot be parsed. Check its braces and commas.",
+    "R115": 'A bare % in a BibTeX entry: BibTeX reads the rest of the line as a comment, cutting the field. Write \\%.',
     "R113": "The file is a symbolic link to a file outside the data folder. Copy the file into the folder.",
     "R114": "The reader could not account for every physical line of the file (a bodyplan bug). Report it with "
             "the file.",

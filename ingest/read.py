@@ -5,6 +5,7 @@ from __future__ import annotations
 import csv
 import hashlib
 import io
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -226,6 +227,10 @@ def read_sources(path: Path, rel: str, findings: Findings) -> list[dict]:
                        code="R111" if "Duplicate" in type(block).__name__ else "R112")
     sources = []
     for entry in library.entries:
+        for i, line in enumerate((entry.raw or "").splitlines()):
+            if re.search(r"(?<!\\)%", line):  # BibTeX reads the rest of the line as a comment
+                findings.error(rel, entry.start_line + 1 + i, "entry", "has a bare % that cuts the field off there "
+                               "(BibTeX reads the rest of the line as a comment); write \\% instead", code="R115")
         fields = {k.lower(): f.value for k, f in entry.fields_dict.items()}
         raw = text.splitlines()[entry.start_line:]
         sources.append({"key": entry.key, "type": entry.entry_type.lower(), "fields": fields,

@@ -195,3 +195,17 @@ def test_citation_with_and_without_volume(fields, text):
     from bodyplan.ingest.build_store import format_citation
 
     assert format_citation(fields) == text
+
+
+def test_bare_percent_in_bibtex(fixture_tree):
+    """BibTeX reads a bare % as the start of a comment, which cut a stored title short (invented entry)."""
+    bib = fixture_tree / "sources.bib"
+    text = bib.read_text()
+    start = text.index("@", text.index("@") + 1)  # the second entry
+    line = text[:start].count("\n") + 2
+    bib.write_text(text[:start] + "@misc{percent2020,\n  title = {Fat (23%) in invented rats},\n  year = {2020}\n}\n\n"
+                   + text[start:])
+    findings, _, _ = check(fixture_tree)
+    assert [str(f) for f in findings.errors] == [
+        f"sources.bib:{line}: entry: has a bare % that cuts the field off there (BibTeX reads the rest of the line "
+        "as a comment); write \\% instead"]
