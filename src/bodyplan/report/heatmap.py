@@ -83,7 +83,7 @@ def heatmap_figure(report: GapReport):
     for side in ax.spines.values():
         side.set_visible(False)
     stage = "all stages" if report.life_stage == "all" else report.life_stage
-    fig.suptitle(f"Curated coverage, layout {report.layout}, {stage}  (row label: readiness)", fontsize=12,
+    fig.suptitle(f"Curated coverage, {report.layout} layout, {stage}  (row label: readiness)", fontsize=12,
                  x=0.01, ha="left")
 
     shown = STATES + ([NOT_IN_LAYOUT] if (states == NOT_IN_LAYOUT).any().any() else [])

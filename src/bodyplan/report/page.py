@@ -8,7 +8,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from ..api.gaps import STATE_HELP, GapReport
+from ..api.gaps import NOT_IN_LAYOUT, STATE_HELP, GapReport
 
 STYLE = """
 body { font-family: system-ui, sans-serif; margin: 2em; max-width: 80em; color: #111; }
@@ -68,14 +68,16 @@ def gap_report_html(report: GapReport, png: bytes | None = None, store_info: dic
     stage = "all stages" if report.life_stage == "all" else f"life stage {report.life_stage}"
     covered = report.coverage[report.coverage["n_values"] > 0].sort_values(["species", "life_stage",
                                                                                     "slot"])
-    states = pd.DataFrame([{"state": k, "meaning": v} for k, v in STATE_HELP.items()])
+    states = pd.DataFrame([{"state": k, "meaning": v} for k, v in STATE_HELP.items()] +
+                          ([{"state": NOT_IN_LAYOUT, "meaning": "the species' own layout has no such compartment "
+                             "(a fish has gills, not lungs)"}] if (report.matrix() == NOT_IN_LAYOUT).any().any() else []))
     info = store_info or {}
     parts = [
         "<!DOCTYPE html>",
         '<html lang="en"><head><meta charset="utf-8">',
-        f"<title>bodyplan gap report: {escape(report.layout)}, {escape(stage)}</title>",
+        f"<title>bodyplan gap report: {escape(report.layout)} layout, {escape(stage)}</title>",
         f"<style>{STYLE}</style></head><body>",
-        f"<h1>Gap report: layout {escape(report.layout)}, {escape(stage)}</h1>",
+        f"<h1>Gap report: {escape(report.layout)} layout, {escape(stage)}</h1>",
         f'<p class="note">{len(ranked)} species × stage rows, {len(report.slots)} parameters. '
         f"Store {escape(str(info.get('store', '')))}, content hash {escape(str(info.get('content_hash', ''))[:16])}."
         " Readiness is the share of the layout's parameter set (body weight, cardiac output, GFR, hematocrit, "
