@@ -15,13 +15,17 @@ from ..schema.model import STAGE_FALLBACK, slots
 
 
 def other_stage_rows(store, species: str, life_stage: str, layout) -> dict[str, dict[str, int]]:
-    """slot id → {other stage: number of rows with a value} for one species."""
+    """slot id → {other stage: number of rows a set there would count} for one species (a piece of an organ
+    or a row of animals exercising is no row to point to)."""
+    from .rows import CountedRows
+
     parts: dict[str, list[str]] = {}
     for row in store.query("SELECT id, part_of FROM compartments WHERE part_of IS NOT NULL ORDER BY id"):
         parts.setdefault(row["part_of"], []).append(row["id"])
-    counts = {(r["life_stage_id"], r["compartment_id"], r["quantity_id"]): r["n"] for r in store.query(
-        "SELECT life_stage_id, compartment_id, quantity_id, count(*) AS n FROM curated_values "
-        "WHERE species_id = ? AND life_stage_id <> ? AND value IS NOT NULL GROUP BY 1, 2, 3", (species, life_stage))}
+    stages = [r[0] for r in store.query("SELECT DISTINCT life_stage_id FROM curated_values WHERE species_id = ? "
+                                        "AND life_stage_id <> ?", (species, life_stage))]
+    counts = {(stage, compartment, quantity): len(rows) for stage in stages
+              for (quantity, compartment), rows in CountedRows(store, species, stage).groups.items()}
     out: dict[str, dict[str, int]] = {}
     for slot in slots(layout, parts):
         for (stage, compartment, quantity), n in counts.items():
@@ -37,14 +41,16 @@ def stage_order(life_stage: str, stages_with_rows) -> list[str]:
     return preferred + sorted(s for s in stages_with_rows if s not in preferred and s != life_stage)
 
 
-def point_to_other_stages(ps, counts: dict[str, dict[str, int]]) -> None:
-    """Say on each gap how many rows other stages hold for it."""
+def point_to_other_stages(ps, counts: dict[str, dict[str, int]], tried: bool = False) -> None:
+    """Say on each gap how many rows other stages hold for it, and whether the fallback already tried them."""
     for cells, key, slot in _gap_cells(ps):
         found = counts.get(slot)
         if found:
             where = ", ".join(f"{n} at {stage}" for stage, n in sorted(found.items()))
-            cells[key] = replace(cells[key], reason=f"{cells[key].reason}; rows exist at other stages ({where}): "
-                                 "ask for the stage fallback, or another life stage")
+            then = (", but the stage fallback found no number in them (trace that stage to see why)" if tried else
+                    ": ask for the stage fallback, or another life stage")
+            cells[key] = replace(cells[key], reason=f"{cells[key].reason}; rows exist at other stages ({where})"
+                                 + then)
 
 
 def fall_back(store, ps, make_set) -> None:
@@ -60,7 +66,7 @@ def fall_back(store, ps, make_set) -> None:
             found = _cell_of(other, slot)
             if found is not None and found.origin not in ("gap", "not_applicable"):
                 cells[key] = from_stage(found, stage)
-    point_to_other_stages(ps, counts)
+    point_to_other_stages(ps, counts, tried=True)
 
 
 def from_stage(cell, stage: str):

@@ -632,3 +632,21 @@ def test_anaesthetised_rows_give_way_to_conscious_ones(tree, tmp_path):
     build(tree, tmp_path / "without.sqlite")
     resolver = Resolver(open_store(tmp_path / "without.sqlite"), "dog")
     assert [r["row_id"] for r in resolver.rows("cardiac_output", "whole_body")] == ["co_an"]
+
+
+def test_gaps_point_only_to_rows_another_stage_would_count(tree, tmp_path):
+    """A juvenile dog's single fat depot is no row to point an adult's adipose gap to; a juvenile dog's
+    whole adipose tissue is (invented for tests)."""
+    from bodyplan import open_store
+
+    add(tree, V, id="depot", life_stage="juvenile", compartment="adipose", quantity="tissue_mass_fraction",
+        part="segment", value="2", unit="%")
+    build(tree, tmp_path / "piece.sqlite")
+    gap = open_store(tmp_path / "piece.sqlite").parameter_set("dog").volumes["adipose"]
+    assert gap.origin == "gap" and "other stages" not in gap.reason
+    add(tree, V, id="whole", life_stage="juvenile", compartment="adipose", quantity="tissue_mass_fraction",
+        value="12", unit="%")
+    build(tree, tmp_path / "whole.sqlite")
+    gap = open_store(tmp_path / "whole.sqlite").parameter_set("dog").volumes["adipose"]
+    assert gap.reason.endswith("rows exist at other stages (1 at juvenile): ask for the stage fallback, or another "
+                               "life stage")
