@@ -115,7 +115,7 @@ def temperature_check(resolver, ps) -> None:
     Rows far apart in temperature pooled without a temperature asked, or rows that state none, are said."""
     counted = [r for rows in resolver.groups.values() for r in rows]
     stated = sorted(r["temperature_c"] for r in counted if r["temperature_c"] is not None)
-    far = sum(1 for why in resolver.left_out.values() if why.startswith("measured at"))
+    far = len(resolver.other_temperature)
     if not stated and not far:
         return
     silent = len(counted) - len(stated)

@@ -171,8 +171,8 @@ def _set_aside(store, rows: pd.DataFrame, keys) -> list[bool]:
 
     out = set()
     for sp, st in keys:
-        out |= {(sp, st, *key) for key, why in CountedRows(store, sp, st).left_out.items()
-                if not why.startswith("the same animals")}  # the same animals counted by another row still cover
+        counted = CountedRows(store, sp, st)  # animals counted by another row of their source still cover
+        out |= {(sp, st, *key) for key in counted.left_out.keys() - counted.counted_elsewhere}
     return [key in out for key in zip(rows["species_id"], rows["life_stage_id"], rows["source_id"], rows["row_id"])]
 
 
@@ -300,11 +300,9 @@ def gap_report(store, species=None, life_stage: str = "adult", layout=None) -> G
         tables.update(of_layout)
         params.update({p.id: p for p in slots_of if p.id not in params})
     order = {sp: i for i, sp in enumerate(species)}  # the species in the order asked for
-    coverage = pd.concat(coverages, ignore_index=True)
-    coverage = coverage.iloc[sorted(range(len(coverage)), key=lambda i: order[coverage["species"].iat[i]])]
-    coverage = coverage.reset_index(drop=True)
-    readiness = pd.concat(readinesses, ignore_index=True)
-    readiness = readiness.sort_values("species", key=lambda c: c.map(order), kind="stable").reset_index(drop=True)
+    asked = lambda frame: frame.sort_values("species", key=lambda c: c.map(order), kind="stable")  # noqa: E731
+    coverage = asked(pd.concat(coverages, ignore_index=True)).reset_index(drop=True)
+    readiness = asked(pd.concat(readinesses, ignore_index=True)).reset_index(drop=True)
     keys = list(zip(readiness["species"], readiness["life_stage"]))
     params = list(params.values())
     covered = coverage[coverage["n_values"] > 0].groupby(["species", "life_stage"]).size()

@@ -1,9 +1,9 @@
 """Which of one species' curated rows count, and as which animals.
 
 The rows of one species, stage and sex (and class) are read once; a part that is not the whole, a condition
-sets do not describe (exercise, exhaustion …), a method not accepted for the animal and quantity, a reprint of a source that is itself here, a group whose
-animals another row already counts, or a share of empty body without its source's ratio is left out, and
-``left_out`` says why (trace shows it). Recalled rows give way to read ones (``read_first``). The
+sets do not describe (exercise, exhaustion …), a method not accepted for the animal and quantity, a reprint
+of a source that is itself here, a group whose animals another row already counts, or a share of empty body
+without its source's ratio is left out, and ``left_out`` says why (trace shows it). Recalled rows give way to read ones (``read_first``). The
 resolver (resolve.py) turns the rows that count into parameters.
 """
 
@@ -41,6 +41,8 @@ class CountedRows:
             params.append(animal_class)
         self.all_rows = [dict(r) for r in store.query(sql + " ORDER BY source_id, line", params)]
         self.left_out: dict[tuple[str, str], str] = {}  # (source, row id) → why pooling leaves the row out
+        self.counted_elsewhere: set[tuple[str, str]] = set()  # left out, but their animals count in another row
+        self.other_temperature: set[tuple[str, str]] = set()  # left out as measured far from the set's temperature
         self.groups: dict[tuple[str, str], list[dict]] = defaultdict(list)
         for r in self._what_counts(self.all_rows):
             self.groups[(r["quantity_id"], r["compartment_id"])].append(r)
@@ -69,6 +71,8 @@ class CountedRows:
             seen: dict[str, str] = {}
             # of two rows of the same animals, the one that needs no borrowed body mass counts
             for r in sorted(same, key=lambda r: r["normalisation"] == "none" and r["subject_body_mass_kg"] is None):
+                if r["group_id"] not in keep or r["group_id"] in seen:
+                    self.counted_elsewhere.add((source, r["row_id"]))
                 if r["group_id"] not in keep:
                     self.left_out[(source, r["row_id"])] = (f"group {r['group_id']} overlaps another group of "
                                                             "this source that is counted (groups.csv)")
@@ -88,6 +92,7 @@ class CountedRows:
         measured_at = r["temperature_c"]
         if self.temperature is not None and measured_at is not None \
                 and abs(measured_at - self.temperature) > TEMPERATURE_BAND:
+            self.other_temperature.add((r["source_id"], r["row_id"]))
             return f"measured at {measured_at:g} °C; the set is for {self.temperature:g} ± {TEMPERATURE_BAND:g} °C"
         if not self.all_methods and r["method_id"] and not self._accepted(r["method_id"], r["quantity_id"]):
             return f"method {r['method_id']} is not accepted for {r['quantity_id']} here (vocab/methods.csv)"
@@ -99,12 +104,17 @@ class CountedRows:
         return ""
 
     @cached_property
+    def _conditions(self) -> dict[str, str]:
+        """Condition id → in_sets (yes, fallback or no; vocab/conditions.csv)."""
+        return dict(self.store.query("SELECT id, in_sets FROM conditions"))
+
+    @cached_property
     def _in_sets(self) -> frozenset[str]:
-        return frozenset(r[0] for r in self.store.query("SELECT id FROM conditions WHERE in_sets <> 'no'"))
+        return frozenset(c for c, use in self._conditions.items() if use != "no")
 
     @cached_property
     def _fallback(self) -> frozenset[str]:
-        return frozenset(r[0] for r in self.store.query("SELECT id FROM conditions WHERE in_sets = 'fallback'"))
+        return frozenset(c for c, use in self._conditions.items() if use == "fallback")
 
     def _awake_first(self, rows: list[dict]) -> list[dict]:
         """Rows of a fallback condition (anaesthesia) give way, parameter by parameter, to rows of animals
