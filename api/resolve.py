@@ -16,7 +16,7 @@ from collections import defaultdict
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 
-from ..schema.model import (FLUID_VOLUME, PARAMETERS, REFERENCE_HEIGHT_CM, VESSEL_ORGAN,
+from ..schema.model import (FLUID_VOLUME, MIRROR_PAIRS, PARAMETERS, REFERENCE_HEIGHT_CM, VESSEL_ORGAN, is_side,
                             routes, summable_parts)
 from .pooling import Estimate, pool
 from .rows import SAME_SUBJECTS, CountedRows
@@ -429,6 +429,14 @@ class Resolver(CountedRows):
                                                             "their sources, is used")
         return True
 
+    @staticmethod
+    def _doubled_side(compartment: str, side: Resolved) -> Resolved:
+        """One side of a mirror pair, doubled: the pair when the other side has no data."""
+        est = side.estimate.scaled(2.0)
+        note = f"{compartment}: one side doubled, the other side has no data (the two sides taken as alike)"
+        return Resolved(replace(est, method=f"one side × 2 ({est.method})"), side.rows, sorted({*side.notes, note}),
+                        side.absolute_at, verified_share=side.verified_share)
+
     def _from_parts(self, compartment: str, resolve, what: str) -> Resolved:
         """A whole without rows of its own is the sum of its parts, when every part has data."""
         gap = _gap(f"no {what} of {compartment} for {self.species} ({self.life_stage})")
@@ -437,6 +445,8 @@ class Resolver(CountedRows):
             return gap
         resolved = {p: resolve(p) for p in parts}
         missing = [p for p, r in resolved.items() if not r.ok]
+        if missing and compartment in MIRROR_PAIRS and all(is_side(p) for p in parts) and len(missing) < len(parts):
+            return self._doubled_side(compartment, next(r for r in resolved.values() if r.ok))
         if missing:
             if len(missing) < len(parts):
                 gap.reason += f" (its parts {', '.join(missing)} lack data too)"

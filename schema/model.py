@@ -41,6 +41,10 @@ VESSEL_ORGAN = {"hepatic_artery": LIVER, "portal_vein": LIVER}  # the tissue a v
 # One-side organs (left_kidney …) are parts of the pair (vocab part_of); the pair is their sum only
 # when both sides are given, so a single side never passes for the pair.
 SIDE_PREFIXES = ("left_", "right_")
+# Pairs whose two sides are alike in mass and flow: one side, doubled, stands for the pair when the
+# other side has no data, and says so (common practice, no source). Lungs are not alike (the right is
+# larger), so they are never doubled.
+MIRROR_PAIRS = frozenset({"kidney"})
 
 
 def is_portal(parts) -> bool:

@@ -169,3 +169,16 @@ def test_read_sides_of_a_pair_beat_a_recalled_whole(store):
     assert resolved.estimate.value * density == pytest.approx((53.97 + 50.05) / 1000 / 20, rel=1e-9)
     left = dict(zip(*[trace(store, "dog", "tissue_mass", "kidney").rows[k] for k in ("source", "left_out")]))
     assert "the sum of its parts, read in their sources, is used" in left["davies1993"]
+
+
+def test_one_kidney_doubled_stands_for_the_pair_and_says_so(store):
+    """Di Giantomasso et al. 2003 (abstract) give the left renal artery flow of conscious sheep, 214 mL/min,
+    with their cardiac output: with no right kidney row, the pair is the left side doubled (kidneys
+    alike: common practice, no source), and trace says so."""
+    side = Resolver(store, "sheep").flow_fraction("left_kidney")
+    pair = Resolver(store, "sheep").flow_fraction("kidney")
+    assert pair.estimate.value == pytest.approx(2 * side.estimate.value, rel=1e-12)
+    assert pair.estimate.method.startswith("one side × 2")
+    assert any("one side doubled" in note for note in pair.notes)
+    combined = trace(store, "sheep", "blood_flow", "kidney").combined
+    assert "one side doubled" in combined[0]["method"]

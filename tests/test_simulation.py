@@ -35,16 +35,27 @@ import flow_model  # noqa: E402
 
 TOY = Path(__file__).parent / "data" / "params_toy"
 # Strata checked end to end: (species, body mass, life stage). A stratum with gaps even after
-# fill="allometric" is reported as xfail with its gaps, and passes as soon as its data land. Body masses
-# of the food-animal strata are typical production weights (common practice, no source).
+# fill="allometric" and the stage fallback is reported as xfail with its gaps, and passes as soon as its data
+# land. Body masses of the food-animal strata are typical production weights, of the others typical adult
+# weights (common practice, no source).
 STRATA = [
     ("human", "73 kg", "adult"),
     ("rat", "0.25 kg", "adult"),
+    ("mouse", "0.025 kg", "adult"),
     ("dog", "12 kg", "adult"),
-    ("pig", "100 kg", "adult"),
+    ("pig", "100 kg", "juvenile"),  # a finishing pig
     ("sheep", "60 kg", "adult"),
+    ("goat", "50 kg", "adult"),
     ("cattle", "650 kg", "lactating"),  # a lactating dairy cow
+    ("cattle", "400 kg", "juvenile"),  # growing beef cattle
     ("chicken", "2.5 kg", "juvenile"),  # a broiler at slaughter age
+    ("chicken", "1.8 kg", "laying"),
+    ("turkey", "10 kg", "juvenile"),
+    ("domestic_duck", "3 kg", "juvenile"),
+    ("rabbit", "3 kg", "adult"),
+    ("cat", "4 kg", "adult"),
+    ("horse", "500 kg", "adult"),
+    ("rhesus_macaque", "6 kg", "adult"),
 ]
 INFUSION = 1.0  # amount per model time unit (mol/h in SI)
 MASS_BALANCE = 1e-9  # of the amount infused
@@ -205,16 +216,17 @@ def total_liver_flow(data: dict) -> float:
 
 
 def simulation_set(store, species, body_mass, stage, request):
-    """The plain set, or the allometric fill where it has gaps; a set still with gaps is marked xfail
-    (not strict) with its gap list, so the case passes as soon as the data land."""
+    """The plain set, or where it has gaps the allometric fill with the stage fallback; a set still with
+    gaps is marked xfail (not strict) with its gap list, so the case passes as soon as the data land."""
     ps = store.parameter_set(species, body_mass=body_mass, life_stage=stage)
     if ps.gaps:
-        ps = store.parameter_set(species, body_mass=body_mass, life_stage=stage, fill="allometric")
+        ps = store.parameter_set(species, body_mass=body_mass, life_stage=stage, fill="allometric",
+                                 stage_fallback=True)
     if ps.gaps:
         gaps = ", ".join(f"{g['compartment']}.{g['quantity']}" for g in ps.gaps)
         request.node.add_marker(pytest.mark.xfail(
-            reason=f"{species} {stage} {body_mass} still has gaps with fill='allometric': {gaps}", strict=False,
-            raises=(ParameterSetError, PopulationError)))
+            reason=f"{species} {stage} {body_mass} still has gaps with the fill and the stage fallback: {gaps}",
+            strict=False, raises=(ParameterSetError, PopulationError)))
     return ps
 
 
@@ -317,9 +329,10 @@ def test_a_set_with_kp_simulates_with_its_kp(real_store, tmp_path):
 def test_individuals_of_a_population_simulate(real_store, species, body_mass, stage, request):
     """Individuals drawn around the stratum (body mass CV 10 %, a 30 % CV where no SD is stored) exported
     as parameter sets: each one, not only the mean animal, builds a model that keeps its balances."""
-    fill = simulation_set(real_store, species, body_mass, stage, request).fill
+    chosen_set = simulation_set(real_store, species, body_mass, stage, request)
     pop = real_store.population(species, 300, 11, life_stage=stage, body_mass=body_mass, body_mass_cv=0.1,
-                                fill=fill, without_sd="default_cv", workers=1)
+                                fill=chosen_set.fill, stage_fallback=chosen_set.fill != "none",
+                                without_sd="default_cv", workers=1)
     chosen = [0, 150, 299]
     sets = pop.parameter_sets(chosen)
     frame = pop.frame.set_index("individual")
