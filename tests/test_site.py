@@ -580,3 +580,20 @@ def test_value_pages_say_the_animals_condition_and_temperature(store, site):
     assert "<dt>condition</dt><dd>exercise, at 15 °C</dd>" in get(site, f"/values/{found[0]}").text
     assert "· condition exercise, at 15 °C ·" in get(make_datasette(store, pages="none"),
                                                    f"/bodyplan/curated_values/{found[0]}").text
+
+
+def test_a_fish_is_shown_in_the_fish_layout_only(store, site):
+    """A fish's parameter sets are in the fish layout (gills in place of lungs); the air breathers' layouts,
+    whose lungs a fish lacks, are not offered for it."""
+    conn = sqlite3.connect(store)
+    fish = conn.execute("SELECT s.id, v.life_stage_id FROM species s JOIN curated_values v ON v.species_id = s.id "
+                        "WHERE s.taxon_class = 'fish' ORDER BY s.id, v.life_stage_id").fetchone()
+    if fish is None:
+        pytest.skip("this store has no fish")
+    sp, stage = fish
+    page = get(site, f"/species/{sp}").text
+    assert f'href="/sets/{sp}/{stage}/fish"' in page and "/whole_body" not in page and "/rich_slow" not in page
+    ps = get(site, f"/sets/{sp}/{stage}/fish")
+    assert ps.status_code == 200 and '<tr id="c-gills">' in ps.text and '<tr id="c-lung">' not in ps.text
+    assert "Other layout" not in ps.text
+    assert get(site, f"/sets/{sp}/{stage}/whole_body").status_code == 404

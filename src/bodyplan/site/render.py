@@ -12,7 +12,7 @@ from urllib.parse import urlencode
 
 from .. import CAUTION
 from .plugin import CONTENT_TYPES, describe_canonical, describe_value
-from .sets import LAYOUTS, SiteData
+from .sets import LAYOUTS, SiteData, layouts_for
 
 Pages = dict[str, tuple[str, bytes]]
 VALUES_TABLE = "/bodyplan/curated_values"
@@ -60,7 +60,7 @@ def render_pages(store) -> Pages:
     sets = {}
     for sp in data.species:
         for stage in stage_of[sp["id"]]:
-            for layout in LAYOUTS:
+            for layout in layouts_for(sp["taxon_class"]):
                 ps = data.parameter_set(sp["id"], stage, layout)
                 sets[(sp["id"], stage, layout)] = ps
                 base = set_url(sp["id"], stage, layout)
@@ -68,7 +68,7 @@ def render_pages(store) -> Pages:
                 for ext, key in (("json", "json"), ("csv", "csv"), ("sbml.xml", "sbml")):
                     pages[f"{base}.{ext}"] = (CONTENT_TYPES[ext.rsplit(".", 1)[-1]], downloads[key].encode("utf-8"))
                 html(base, "parameter_set.html", ps=ps, species=sp, base=base, labels=labels,
-                     other_layouts=[x for x in LAYOUTS if x != layout])
+                     other_layouts=[x for x in layouts_for(sp["taxon_class"]) if x != layout])
 
     for sp in data.species:
         stages = []
@@ -83,7 +83,7 @@ def render_pages(store) -> Pages:
                     h["verified"] += bool(r["verified"])
                     h["sources"].add(r["source_id"])
             by_layout = []
-            for layout in LAYOUTS:
+            for layout in layouts_for(sp["taxon_class"]):
                 cov = data.coverage(layout)
                 ready = cov["readiness"].get((sp["id"], stage))
                 cells = [dict(cov["cells"][(sp["id"], stage, p["id"])], **p)

@@ -6,7 +6,17 @@ from __future__ import annotations
 
 from functools import cached_property
 
-LAYOUTS = ("whole_body", "rich_slow")  # the bundled layouts; each gets its own parameter-set pages
+LAYOUTS = ("whole_body", "rich_slow", "fish")  # the bundled layouts; each gets its own coverage pages
+MINIMAL = "rich_slow"  # the minimal layout of air breathers: fish have no lungs for it to lump
+
+
+def layouts_for(taxon_class: str) -> tuple[str, ...]:
+    """The layouts a species' parameter sets are shown in: its own (fish: fish), then for air breathers the
+    minimal one."""
+    from ..schema.model import default_layout
+
+    own = default_layout(taxon_class)
+    return (own, MINIMAL) if own == "whole_body" else (own,)
 PHYSIOLOGY_LABELS = {"gfr": "GFR", "hematocrit": "hematocrit"}
 PHYSIOLOGY_ROWS = {"gfr": ("whole_body", ("gfr",)), "hematocrit": ("blood", ("hematocrit",))}
 
