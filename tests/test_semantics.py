@@ -603,6 +603,30 @@ def test_a_set_at_a_temperature_uses_rows_measured_near_it(tree, tmp_path):
         store.parameter_set("dog", temperature=20)
 
 
+def test_a_population_at_a_temperature_draws_from_rows_measured_near_it(tree, tmp_path):
+    """Trout cardiac output of one group at 4 °C and another at 12 °C (invented for tests): a population at
+    12 °C centres its cardiac output on the 12 °C row, and its sidecar says at which temperature."""
+    import json
+
+    from bodyplan import open_store
+
+    add(tree, V, id="bm", species="rainbow_trout", group="g", compartment="whole_body", quantity="body_mass",
+        value="500", unit="g", n="10")
+    for i, (flow, temp) in enumerate([(10, "4 degC"), (30, "12 degC")]):
+        add(tree, V, id=f"co{i}", species="rainbow_trout", group=f"c{i}", compartment="whole_body",
+            quantity="cardiac_output", value=str(flow), unit="mL/min/kg", n="8", temperature=temp,
+            denominator="live_body")
+    build(tree, tmp_path / "s.sqlite")
+    store = open_store(tmp_path / "s.sqlite")
+    out = tmp_path / "trout.csv"
+    pop = store.population("rainbow_trout", 20, 1, temperature="12 degC", out=str(out), workers=1)
+    co = next(v for v in pop.spec.variables if v.column == "cardiac_output")
+    assert co.mean == pytest.approx(30 * 60 / 1000 * 0.5)  # L/h at 0.5 kg
+    assert json.loads(out.with_name("trout.csv.json").read_text())["temperature_c"] == pytest.approx(12)
+    with pytest.raises(BodyplanError, match="keeps its own body temperature"):
+        store.population("dog", 5, 1, temperature="12 degC")
+
+
 def test_anaesthetised_rows_give_way_to_conscious_ones(tree, tmp_path):
     """Cardiac output of anaesthetised dogs counts only where no conscious dogs' value exists; their heart
     mass, which no conscious dog's row gives, counts (invented for tests)."""

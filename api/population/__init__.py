@@ -9,13 +9,13 @@ from .sample import GRID, beta_parameters, draw_block, lognormal_parameters, pop
 from .spec import DEFAULT_CV, PopulationError, PopulationSpec, Variable, population_spec
 
 SPEC_OPTIONS = ("life_stage", "sex", "body_mass", "body_mass_cv", "body_mass_range", "layout", "fill",
-                "without_sd", "default_cv", "balance", "stage_fallback", "animal_class", "verified_only")
+                "without_sd", "default_cv", "balance", "stage_fallback", "animal_class", "verified_only", "temperature")
 
 
 def population(store, species: str, n: int, seed: int, **options) -> Population:
     """``n`` individuals of ``species`` drawn with ``seed``. Options of the spec: life_stage, sex, body_mass,
     body_mass_cv, body_mass_range, layout, fill, without_sd ("fixed" or "default_cv"), default_cv,
-    balance ("redraw" or "rescale"), stage_fallback, animal_class, verified_only; ``as_sets=True`` refuses a
+    balance ("redraw" or "rescale"), stage_fallback, animal_class, verified_only, temperature; ``as_sets=True`` refuses a
     population whose individuals could not be parameter sets before drawing it; of the run: out, fmt, chunk_size, workers, mean_uncertainty, progress."""
     spec = population_spec(store, species, **{k: v for k, v in options.items() if k in SPEC_OPTIONS})
     if options.pop("as_sets", False):  # individuals will become parameter sets: refuse gaps before drawing

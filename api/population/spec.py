@@ -233,9 +233,9 @@ def population_spec(store, species: str, *, life_stage: str = "adult", sex: str 
                     body_mass_cv: float | None = None, body_mass_range=None, layout=None,
                     fill: str = "none", without_sd: str = "fixed", default_cv: float = DEFAULT_CV,
                     balance: str = "redraw", stage_fallback: bool = False, animal_class: str | None = None,
-                    verified_only: bool = False) -> PopulationSpec:
+                    verified_only: bool = False, temperature=None) -> PopulationSpec:
     """The variables a population of ``species`` is drawn from; see the module notes for the rules.
-    ``stage_fallback``, ``animal_class`` and ``verified_only`` choose the parameter set as they do for
+    ``stage_fallback``, ``animal_class``, ``verified_only`` and ``temperature`` choose the parameter set as they do for
     :func:`parameter_set`; a number taken from another stage draws its spread from that stage's rows."""
     if without_sd not in WITHOUT_SD:
         raise PopulationError(f"without_sd must be one of {', '.join(WITHOUT_SD)}, not {without_sd!r}")
@@ -251,7 +251,8 @@ def population_spec(store, species: str, *, life_stage: str = "adult", sex: str 
     elif body_mass is not None:
         centre = _mass(body_mass)
     ps = parameter_set(store, species, life_stage=life_stage, sex=sex, body_mass=centre, layout=layout, fill=fill,
-                       stage_fallback=stage_fallback, animal_class=animal_class, verified_only=verified_only)
+                       stage_fallback=stage_fallback, animal_class=animal_class, verified_only=verified_only,
+                       temperature=temperature)
     if ps.body_mass.origin == "gap":
         raise PopulationError(f"{species} ({life_stage}) has no stored body mass; give one (body_mass=, --body-mass), "
                               "or take another stage's typical one (stage_fallback=True, --stage-fallback)")
@@ -267,7 +268,7 @@ def population_spec(store, species: str, *, life_stage: str = "adult", sex: str 
         stage = cell.stage or life_stage
         if stage not in resolvers:
             resolvers[stage] = Resolver(store, species, stage, sex, verified_only=verified_only,
-                                        animal_class=animal_class)
+                                        animal_class=animal_class, temperature=ps.temperature)
             resolvers[stage].target_mass = bm
         return resolvers[stage]
 

@@ -12,6 +12,7 @@ from pathlib import Path
 import click
 
 from .errors import ChoiceError, OutputError
+from .schema.model import TEMPERATURE_BAND
 
 FORMATS = ["table", "csv", "json"]
 
@@ -31,6 +32,9 @@ def set_choice_options(f):
     f = click.option("--class", "animal_class", default=None,
                      help="Production class or breed (vocab/classes.csv: broiler, layer, dairy, minipig …).")(f)
     f = click.option("--verified-only", is_flag=True, help="Use only rows read in their source text.")(f)
+    f = click.option("--temperature", default=None, metavar="TEMP",
+                     help='Fish, reptiles, amphibians: the water or air temperature, e.g. "12 degC"; uses rows '
+                          f"measured within {TEMPERATURE_BAND:g} °C of it (and rows that state none).")(f)
     return click.option("--stage-fallback", is_flag=True,
                         help="Fill gaps from this species' rows at other life stages (named on each value).")(f)
 

@@ -6,7 +6,6 @@ import sys
 
 import click
 
-from ..schema.model import TEMPERATURE_BAND
 
 from ..output import choose_ids, force_option, guard_out, renamed_option, set_choice_options, store_option, to_json
 from .partition import METHOD_CHOICES, kp_method_option
@@ -104,9 +103,6 @@ OUT_SUFFIXES = {"json": (".json",), "csv": (".csv",), "sbml": (".xml", ".sbml"),
 @click.option("--format", "fmt", type=click.Choice(["table", "csv", "json", "sbml"]), default="table",
               show_default=True, help="Output format.")
 @set_choice_options
-@click.option("--temperature", default=None, metavar="TEMP",
-              help='Fish, reptiles, amphibians: the water or air temperature, e.g. "12 degC"; uses rows measured '
-                   f"within {TEMPERATURE_BAND:g} °C of it (and rows that state none).")
 @click.option("--allow-gaps", is_flag=True, help="SBML: export a set with gaps, each marked and set to NaN.")
 @click.option("--compound", "compound_file", type=click.Path(dir_okay=False, exists=True), default=None,
               help="A compound file (TOML or CSV, as for bodyplan kp): add Kp of every compartment to the set.")

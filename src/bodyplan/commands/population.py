@@ -116,7 +116,7 @@ def summary(pop) -> list[str]:
 @store_option
 def population_cmd(species, n, seed, out, fmt, life_stage, sex, body_mass, body_mass_cv, body_mass_range, layout,
                    fill, without_sd, default_cv, balance, mean_uncertainty, chunk_size, workers, quiet, n_sets, stage_fallback,
-                   verified_only, animal_class, store_path):
+                   verified_only, animal_class, temperature, store_path):
     """N virtual individuals of SPECIES: every compartment's volume and flow, cardiac output, GFR,
     hematocrit and body mass, drawn from the stored between-animal variability with both balances kept."""
     from .. import CAUTION
@@ -131,7 +131,7 @@ def population_cmd(species, n, seed, out, fmt, life_stage, sex, body_mass, body_
             body_mass_range=tuple(body_mass_range) if body_mass_range else None, layout=layout, fill=fill,
             without_sd=without_sd.replace("-", "_"), default_cv=DEFAULT_CV if default_cv is None else default_cv,
             balance=balance, stage_fallback=stage_fallback, verified_only=verified_only, animal_class=animal_class,
-            mean_uncertainty=mean_uncertainty, out=out, fmt=fmt, as_sets=bool(n_sets),
+            temperature=temperature, mean_uncertainty=mean_uncertainty, out=out, fmt=fmt, as_sets=bool(n_sets),
             chunk_size=chunk_size or DEFAULT_CHUNK, workers=workers, progress=progress)
     finally:
         progress.stop()
