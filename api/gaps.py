@@ -21,6 +21,7 @@ import pandas as pd
 from ..schema.model import SCALED_SHARES, Slot, default_layout, slots, sub_parts
 
 NOT_IN_LAYOUT = "not in its layout"  # a slot the species' own layout does not have (lungs of a fish)
+NOT_IN_LAYOUT_HELP = "the species' own layout has no such compartment (a fish has gills, not lungs)"
 VERIFIED_MAJORITY = 0.5  # share of a number's weight on verified rows for it to count as verified
 # How a coverage cell stands, from worst to best; the index is the cell's level in the heatmap.
 STATES = ["absent", "fraction only", "no uncertainty", "unverified", "verified", "several sources"]

@@ -318,7 +318,8 @@ def _open(store):
 
 
 def test_coverage_page_is_the_gap_report(store, site):
-    """/coverage: every cell carries the gap report's state and colour, and links to exactly the rows it counts."""
+    """/coverage: every cell carries the gap report's state and colour, and links to exactly the rows it counts;
+    it reads each species in its own layout, as `bodyplan gaps` does (a fish's gills, not lungs)."""
     import re
     from html import unescape
 
@@ -326,8 +327,9 @@ def test_coverage_page_is_the_gap_report(store, site):
     from bodyplan.report.heatmap import state_colours
     from matplotlib.colors import to_hex
 
-    report = gap_report(_open(store), None, life_stage="adult", layout="whole_body")
+    report = gap_report(_open(store), None, life_stage="adult")
     page = get(site, "/coverage")
+    assert "each species' own layout" in unescape(page.text) and "bodyplan gaps --out gaps.html" in page.text
     assert page.status_code == 200
     cells = re.findall(r'<td class="state-(\d)" data-state="([^"]+)" style="background: (#[0-9a-f]{6});', page.text)
     assert len(cells) == len(report.coverage)  # one cell per species × parameter of the report
@@ -411,7 +413,7 @@ def test_modeller_pages_ignore_query_strings_and_answer_404_and_503(store, site)
     missing = get(site, "/species/no_such_species")
     assert missing.status_code == 404 and "start at /species" in missing.text
     old = get(site, "/coverage?stage=juvenile")
-    assert old.status_code == 302 and old.headers["location"] == "/coverage/whole_body/juvenile"
+    assert old.status_code == 302 and old.headers["location"] == "/coverage/own/juvenile"
     pending = make_datasette(store, pages="none")
     pending.bodyplan_pages = Pages()  # not yet rendered
     response = get(pending, "/species")

@@ -8,7 +8,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from ..api.gaps import NOT_IN_LAYOUT, STATE_HELP, GapReport
+from ..api.gaps import NOT_IN_LAYOUT, NOT_IN_LAYOUT_HELP, STATE_HELP, GapReport
 
 STYLE = """
 body { font-family: system-ui, sans-serif; margin: 2em; max-width: 80em; color: #111; }
@@ -69,8 +69,7 @@ def gap_report_html(report: GapReport, png: bytes | None = None, store_info: dic
     covered = report.coverage[report.coverage["n_values"] > 0].sort_values(["species", "life_stage",
                                                                                     "slot"])
     states = pd.DataFrame([{"state": k, "meaning": v} for k, v in STATE_HELP.items()] +
-                          ([{"state": NOT_IN_LAYOUT, "meaning": "the species' own layout has no such compartment "
-                             "(a fish has gills, not lungs)"}] if (report.matrix() == NOT_IN_LAYOUT).any().any() else []))
+                          ([{"state": NOT_IN_LAYOUT, "meaning": NOT_IN_LAYOUT_HELP}] if (report.matrix() == NOT_IN_LAYOUT).any().any() else []))
     info = store_info or {}
     parts = [
         "<!DOCTYPE html>",

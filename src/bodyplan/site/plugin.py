@@ -426,7 +426,7 @@ def asgi_wrapper(datasette):
 async def _page(pages: Pages, path: str, args, send):
     if path == "/coverage" and any(k == "stage" for k, _ in args):  # the old ?stage= form
         stage = next(v for k, v in args if k == "stage")
-        return await Response.redirect(f"/coverage/whole_body/{tilde_encode(stage)}").asgi_send(send)
+        return await Response.redirect(f"/coverage/own/{tilde_encode(stage)}").asgi_send(send)
     if not pages.ready.is_set():
         return await _answer(send, 503, "The modeller pages are being rendered; try again in a few seconds.",
                              {"Retry-After": "5"})

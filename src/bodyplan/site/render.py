@@ -11,8 +11,9 @@ from pathlib import Path
 from urllib.parse import urlencode
 
 from .. import CAUTION
+from ..api.gaps import NOT_IN_LAYOUT
 from .plugin import CONTENT_TYPES, describe_canonical, describe_value
-from .sets import LAYOUTS, SiteData, layouts_for
+from .sets import COVERAGE_LAYOUTS, LAYOUTS, OWN, SiteData, layouts_for
 
 Pages = dict[str, tuple[str, bytes]]
 VALUES_TABLE = "/bodyplan/curated_values"
@@ -28,7 +29,7 @@ def set_url(species: str, stage: str, layout: str) -> str:
 
 
 def coverage_url(layout: str, stage: str) -> str:
-    return "/coverage" if (layout, stage) == (LAYOUTS[0], "adult") else f"/coverage/{layout}/{stage}"
+    return "/coverage" if (layout, stage) == (OWN, "adult") else f"/coverage/{layout}/{stage}"
 
 
 def _environment():
@@ -37,7 +38,8 @@ def _environment():
     env = Environment(loader=FileSystemLoader(str(Path(__file__).parent / "pages")),
                       autoescape=select_autoescape(["html"]), trim_blocks=True, lstrip_blocks=True)
     env.globals.update(rows_url=rows_url, set_url=set_url, coverage_url=coverage_url, caution=CAUTION,
-                       layouts=LAYOUTS, values_table=VALUES_TABLE)
+                       layouts=COVERAGE_LAYOUTS, own=OWN, not_in_layout=NOT_IN_LAYOUT,
+                       values_table=VALUES_TABLE)
     return env
 
 
@@ -93,10 +95,10 @@ def render_pages(store) -> Pages:
             stages.append({"stage": stage, "held": sorted(held.values(), key=lambda h: h["quantity"]),
                            "layouts": by_layout})
         html(f"/species/{sp['id']}", "species.html", species=sp, stages=stages, labels=labels,
-             states=data.coverage(LAYOUTS[0])["states"])
+             states=data.coverage(OWN)["states"])
 
     index = []
-    cov = data.coverage(LAYOUTS[0])
+    cov = data.coverage(OWN)
     for sp in data.species:
         ready = cov["readiness"].get((sp["id"], "adult")) or {}
         n = sum(1 for r in data.rows if r["species_id"] == sp["id"])
@@ -110,7 +112,7 @@ def render_pages(store) -> Pages:
                    if (r["species_id"], r["life_stage_id"], x) in sets])
 
     names = {sp["id"]: sp["common_name"] for sp in data.species}
-    for layout in LAYOUTS:
+    for layout in COVERAGE_LAYOUTS:
         cov = data.coverage(layout)
         stages = sorted({st for _, st in cov["keys"]}, key=lambda s: (s != "adult", s))
         for stage in stages:

@@ -6,7 +6,9 @@ from __future__ import annotations
 
 from functools import cached_property
 
-LAYOUTS = ("whole_body", "rich_slow", "fish")  # the bundled layouts; each gets its own coverage pages
+OWN = "own"  # the coverage read in each species' own layout (fish: fish), as `bodyplan gaps` reads it
+LAYOUTS = ("whole_body", "rich_slow", "fish")  # the bundled layouts
+COVERAGE_LAYOUTS = (OWN, *LAYOUTS)  # each has its coverage pages, the species' own first
 MINIMAL = "rich_slow"  # the minimal layout of air breathers: fish have no lungs for it to lump
 
 
@@ -94,20 +96,21 @@ class SiteData:
 
     @cached_property
     def _coverage(self) -> dict[str, dict]:
-        from ..api.gaps import STATE_HELP, STATES, gap_report
+        from ..api.gaps import NOT_IN_LAYOUT, NOT_IN_LAYOUT_HELP, STATE_HELP, STATES, gap_report
 
         colours = state_colours()
         out = {}
-        for layout in LAYOUTS:
-            report = gap_report(self.store, None, life_stage="all", layout=layout)
+        for layout in COVERAGE_LAYOUTS:
+            report = gap_report(self.store, None, life_stage="all", layout=None if layout == OWN else layout)
             data = report.to_dict()
             cells = {(c["species"], c["life_stage"], c["slot"]): c for c in data["coverage"]}
             readiness = {(r["species"], r["life_stage"]): r for r in data["readiness"]}
             out[layout] = {
-                "layout": layout,
+                "layout": layout, "name": report.layout,
                 "parameters": [dict(p, compartments=p["stored_compartments"]) for p in data["slots"]],
-                "states": [{"state": s, "help": STATE_HELP[s], "colour": colours[s],
-                            "text": text_colour(colours[s])} for s in STATES],
+                "states": [{"state": s, "help": {**STATE_HELP, NOT_IN_LAYOUT: NOT_IN_LAYOUT_HELP}[s],
+                            "colour": colours[s], "text": text_colour(colours[s])}
+                           for s in STATES + ([NOT_IN_LAYOUT] if layout == OWN else [])],
                 "colours": colours,
                 "texts": {s: text_colour(c) for s, c in colours.items()},
                 "cells": cells,
