@@ -71,7 +71,7 @@ def format_citation(fields: dict) -> str:
     surnames = [a.strip("{}") if a.startswith("{") and a.endswith("}") and "," not in a  # an organisation
                 else a.split(",")[0].strip() if "," in a else a.split()[-1] for a in authors]
     who = (surnames[0] + " et al." if len(surnames) > 2 else " & ".join(surnames)) or \
-        fields.get("organization", fields.get("publisher", "Anonymous"))
+        fields.get("organization", fields.get("publisher", "Authors not seen"))
     where = _without_braces(fields.get("journal") or fields.get("booktitle") or fields.get("publisher") or "")
     detail = where
     if fields.get("volume"):

@@ -358,3 +358,14 @@ def test_developers_session_replays_exactly(tmp_path, monkeypatch):
                     code = exc.code or 0
             printed = out.getvalue()
         assert (code, sorted(printed.splitlines())) == (status, sorted(expected.splitlines())), command
+
+
+def test_trace_counts_the_sources_of_the_rows_used_not_of_a_borrowed_density():
+    """Two groups of one source, combined with a tissue density from another source: 'from 1 source'."""
+    from bodyplan.commands.curation import _combination_line
+
+    rows = [{"source": "groups2026", "row_id": r} for r in ("males", "females")]
+    line = _combination_line({"compartment": "brain", "parameter": "volume", "value": 0.015, "unit": "L per kg",
+                              "se": None, "sd": None, "low": None, "high": None, "method": "mean of study values",
+                              "n_studies": 2, "sources": ["groups2026", "density2026"], "rows_used": rows})
+    assert "2 independent groups from 1 source;" in line

@@ -314,7 +314,14 @@ def test_cli_gaps(store, tmp_path):
     assert out.stat().st_size > 10_000 and "human" in result.output and "dog" in result.output
     csv = runner.invoke(cli, ["gaps", "--species", "rat", "--format", "csv", "--store", str(store.path)])
     frame = pd.read_csv(io.StringIO(csv.output))
-    assert set(frame["species"]) == {"rat"} and len(frame) == len(slots(load_layout("whole_body")))
+    # one species asked for: each of its stages with data (and adult), every slot of the layout for each
+    stages = {r["life_stage_id"] for r in store.query("SELECT DISTINCT life_stage_id FROM curated_values "
+                                                         "WHERE species_id = 'rat'")} | {"adult"}
+    assert set(frame["species"]) == {"rat"} and set(frame["life_stage"]) == stages
+    assert (frame.groupby("life_stage").size() == len(slots(load_layout("whole_body")))).all()
+    adult = runner.invoke(cli, ["gaps", "--species", "rat", "--life-stage", "adult", "--format", "csv",
+                                "--store", str(store.path)])
+    assert set(pd.read_csv(io.StringIO(adult.output))["life_stage"]) == {"adult"}
     bad = runner.invoke(cli, ["gaps", "--out", str(tmp_path / "x.txt"), "--store", str(store.path)])
     assert bad.exit_code != 0
 

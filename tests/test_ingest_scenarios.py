@@ -189,9 +189,12 @@ def test_scenario_code(scenario, scenario_tree):
      "Tester (1990). A study. J Test, 3–9."),
     ({"author": "Tester, A.", "year": "1990", "title": "A study", "pages": "316--322"},
      "Tester (1990). A study. pp. 316–322."),
+    ({"title": "An abstract read without its authors", "journal": "J Test"},
+     "Authors not seen (n.d.). An abstract read without its authors. J Test."),
 ])
 def test_citation_with_and_without_volume(fields, text):
-    """Pages follow the volume after a colon; without a volume there is no stray colon (invented entries)."""
+    """Pages follow the volume after a colon; without a volume there is no stray colon; without authors it
+    says they were not seen, not that the work is anonymous (invented entries)."""
     from bodyplan.ingest.build_store import format_citation
 
     assert format_citation(fields) == text

@@ -103,7 +103,8 @@ def _combination_line(c: dict) -> str:
         f", sd {_short_number(c['sd'])}" if c.get("sd") is not None else ""
     kind = "95 % prediction interval" if "prediction interval" in (c["method"] or "") else "range of study values"
     span = f", {kind} {_short_number(c['low'])}..{_short_number(c['high'])}" if c.get("low") is not None else ""
-    n, k = c["n_studies"], len(c.get("sources") or ())
+    # the sources of the rows used: a density or body mass borrowed from other sources is not one of them
+    n, k = c["n_studies"], len({r["source"] for r in c.get("rows_used") or ()} or set(c.get("sources") or ()))
     # independent groups of one source pool as studies do, but are not more publications
     studies = f"{n} independent groups from {k} source{'s' if k > 1 else ''}" if 0 < k < n else \
         f"{n} stud{'y' if n == 1 else 'ies'}"

@@ -33,8 +33,9 @@ def _write_report(report, out: str, store) -> str:
 
 @click.command("gaps")
 @click.option("--species", "species", multiple=True, help="Species id (repeatable; default: every species).")
-@renamed_option("--life-stage", "--stage", "stage", default="adult", show_default=True,
-                help="Life stage, or 'all' for every stage with data (plus adult for every species).")
+@renamed_option("--life-stage", "--stage", "stage", default=None,
+                help="Life stage, or 'all' for every stage with data (plus adult for every species). Default: "
+                     "every stage of the species asked for with --species, else adult.")
 @click.option("--layout", default=None,
               help="Layout name (whole_body, rich_slow, fish) or a .toml file (default: each species' own: fish "
                    "take the fish layout, the others whole_body).")
@@ -51,6 +52,8 @@ def gaps_cmd(species, stage, layout, fmt, out, force, store_path):
     if out:
         _guard_report(out, store_file, force)
     store = open_store(store_file)
+    if stage is None:  # a curator asking for one species wants each of its stages, not only the adult
+        stage = "all" if species else "adult"
     species = choose_ids(store, "species", list(species) or None, "species", "--species")
     if stage != "all":
         stage = choose_ids(store, "life_stages", stage, "life stage", "--life-stage")
