@@ -7,11 +7,10 @@ is log10(value) on log10(body mass); the filled value carries its 95 % predictio
 
 from __future__ import annotations
 
-from ..schema.model import STAGE_FALLBACK
+from ..schema.model import MAX_INTERVAL_RATIO, STAGE_FALLBACK
 from .cell import Cell
 
 MIN_SPECIES = 3  # a fit with intervals needs three species of the animal's own class
-MAX_INTERVAL_RATIO = 10.0  # a fill whose 95 % prediction interval spans more than this factor is no use
 PLAUSIBLE_MARGIN = 2.0  # a fill beyond the peers' own range (per kg body mass, or per kg tissue) by this factor
 
 

@@ -16,13 +16,23 @@ from collections import defaultdict
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 
-from ..schema.model import (FLUID_VOLUME, MIRROR_PAIRS, PARAMETERS, REFERENCE_HEIGHT_CM, VESSEL_ORGAN, is_side,
+from ..schema.model import (FLUID_VOLUME, MAX_INTERVAL_RATIO, MIRROR_PAIRS, PARAMETERS, REFERENCE_HEIGHT_CM, VESSEL_ORGAN, is_side,
                             routes, summable_parts)
 from .pooling import Estimate, pool
 from .rows import SAME_SUBJECTS, CountedRows
 
 PER_TISSUE = "blood_flow per kg tissue"  # the route of a flow given per mass of its tissue
 WITHIN_SPECIES_POINTS, WITHIN_SPECIES_SPAN = 3, 2.0  # subjects' masses needed to scale within a species
+
+
+def _usable(fitted: Estimate) -> bool:
+    """A within-species fit whose prediction interval is narrow enough to scale on."""
+    return fitted.high / fitted.low <= MAX_INTERVAL_RATIO
+
+
+def _unused_fit(fitted: Estimate) -> str:
+    return (f"a within-species power law was not used: its 95 % prediction interval {fitted.low:.3g}–"
+            f"{fitted.high:.3g} spans more than ×{MAX_INTERVAL_RATIO:g}; the rows are pooled per kg body mass")
 SAME_BODY_WEIGHT = 0.02  # relative difference under which rows describe the requested body weight
 NAN = float("nan")
 
@@ -299,10 +309,12 @@ class Resolver(CountedRows):
         else:
             absolute = [r for r in rows if r["normalisation"] == "none"]
             masses = sorted({r["_mass"] for r in absolute})
-            if len(absolute) >= 3 and len(masses) >= 3 and masses[-1] / masses[0] >= 2:
-                result = self._within_species_fit(absolute, body_mass)
+            fitted = self._within_species_fit(absolute, body_mass) \
+                if len(absolute) >= 3 and len(masses) >= 3 and masses[-1] / masses[0] >= 2 else None
+            if fitted is not None and _usable(fitted.estimate):
+                result = fitted
             else:
-                resolved = self._resolved(rows, [])
+                resolved = self._resolved(rows, [] if fitted is None else [_unused_fit(fitted.estimate)])
                 resolved.estimate = resolved.estimate.scaled(body_mass)
                 result = resolved
         self._co_cache[body_mass] = result
@@ -324,6 +336,9 @@ class Resolver(CountedRows):
                        f"within-species allometry of the per-kg value over {len(rows)} rows of "
                        f"{min(masses):.3g}–{max(masses):.3g} kg subjects: {fit.a:.3g}·BW^{fit.b:.3f} "
                        "(95 % prediction interval)", len(rows), tuple(dict.fromkeys(r["source_id"] for r in rows)))
+        if not _usable(est):  # too few or too scattered rows to scale on: their per-kg values are pooled
+            notes.append(_unused_fit(est))
+            return None
         return Resolved(est, rows, notes, verified_share=sum(bool(r["verified"]) for r in rows) / len(rows))
 
     def _within_species_fit(self, absolute: list[dict], body_mass: float) -> Resolved:

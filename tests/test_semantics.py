@@ -674,3 +674,34 @@ def test_gaps_point_only_to_rows_another_stage_would_count(tree, tmp_path):
     gap = open_store(tmp_path / "whole.sqlite").parameter_set("dog").volumes["adipose"]
     assert gap.reason.endswith("rows exist at other stages (1 at juvenile): ask for the stage fallback, or another "
                                "life stage")
+
+
+def _pig_brain_at_40_kg(tree, tmp_path, percents):
+    """Pig brain as % of body mass at 10, 40 and 100 kg (invented for tests), resolved for a 40 kg set."""
+    from bodyplan import open_store
+    from bodyplan.api.resolve import Resolver
+
+    for i, (kg, pct) in enumerate(zip((10, 40, 100), percents)):
+        add(tree, V, id=f"br{i}", species="pig", group=f"g{i}", compartment="brain", quantity="tissue_mass_fraction",
+            value=pct, unit="%", n="6", body_mass=f"{kg} kg")
+    build(tree, tmp_path / "s.sqlite")
+    resolver = Resolver(open_store(tmp_path / "s.sqlite"), "pig")
+    resolver.target_mass = 40.0
+    return resolver.volume_per_kg("brain")
+
+
+def test_a_within_species_fit_too_scattered_to_scale_on_gives_way_to_pooling(tree, tmp_path):
+    """0.5, 0.05 and 0.2 %: a power law through three scattered points has a prediction interval far wider
+    than ×10, so the set pools the per-kg values instead and says why."""
+    from bodyplan.schema.model import MAX_INTERVAL_RATIO
+
+    pooled = _pig_brain_at_40_kg(tree, tmp_path, ["0.5", "0.05", "0.2"])
+    assert "within-species" not in pooled.estimate.method
+    assert any(f"spans more than ×{MAX_INTERVAL_RATIO:g}" in note for note in pooled.notes)
+
+
+def test_a_within_species_fit_close_to_its_rows_is_scaled_on(tree, tmp_path):
+    """0.5, 0.3 and 0.2 %: nearly a power law of body mass, so the set scales on it at 40 kg."""
+    fitted = _pig_brain_at_40_kg(tree, tmp_path, ["0.5", "0.3", "0.2"])
+    assert fitted.estimate.method.startswith("within-species allometry")
+    assert fitted.estimate.high / fitted.estimate.low <= 10
