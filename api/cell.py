@@ -25,6 +25,7 @@ class Cell:
     verified_share: float | None = None  # share of its weight on rows read in their source (None: not from rows)
     mass: float | None = None  # kg, for volumes: volume × the tissue density used (closes the mass balance)
     stage: str | None = None  # the life stage whose rows gave a stage-fallback number
+    conditions: tuple[str, ...] = ()  # the animals' states other than rest behind it (anaesthesia, as a fallback)
 
     @classmethod
     def gap(cls, unit: str, reason: str) -> "Cell":
@@ -50,6 +51,8 @@ class Cell:
             out["reason"] = self.reason
         if self.stage:
             out["from_stage"] = self.stage
+        if self.conditions:
+            out["conditions"] = list(self.conditions)
         return out
 
 

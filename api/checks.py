@@ -110,6 +110,20 @@ def studied_range_check(resolver, ps) -> None:
                                 f"this species' rows at this stage (margin ×{STUDIED_RANGE_MARGIN:g})"})
 
 
+def condition_check(ps) -> None:
+    """Numbers that rest on animals not at rest (anaesthetised ones, where no conscious animals' rows exist)."""
+    from ..schema.model import slot_id
+
+    behind = {}
+    for comp, parameter, cell in ps.cells():
+        for condition in cell.conditions:
+            behind.setdefault(condition, []).append(slot_id(comp, parameter))
+    for condition, slots in sorted(behind.items()):
+        ps.checks.append({"check": "condition", "status": "warn",
+                          "detail": f"{', '.join(slots)} rest on rows of animals in condition {condition}: no rows of "
+                                    "animals at rest give them (vocab/conditions.csv)"})
+
+
 def temperature_check(resolver, ps) -> None:
     """Fish and other ectotherms: at which water or air temperatures the rows behind the set were measured.
     Rows far apart in temperature pooled without a temperature asked, or rows that state none, are said."""

@@ -12,10 +12,11 @@ import pandas as pd
 from .. import CAUTION
 from ..errors import BodyplanError
 from ..schema.descriptors import ECTOTHERMS
-from ..schema.model import (LIVER, PARAMETERS, PORTAL_ORGANS, VESSELS_OF_LIVER, circulation, default_layout,
+from ..schema.model import (AT_REST, LIVER, PARAMETERS, PORTAL_ORGANS, VESSELS_OF_LIVER, circulation, default_layout,
                             has_own_flow, is_portal, is_pulmonary, slot_id)
 from .cell import Cell
-from .checks import class_check, close_balances, source_sum_checks, studied_range_check, temperature_check
+from .checks import (class_check, close_balances, condition_check, source_sum_checks, studied_range_check,
+                     temperature_check)
 from .fallback import fall_back, from_stage, other_stage_rows, point_to_other_stages, stage_order
 from .layouts import REST, Layout, load_layout
 from .pooling import Estimate
@@ -49,7 +50,12 @@ def _scaled_cell(resolved: Resolved, factor: float, unit: str, body_mass: float 
     origin = ("measured" if est.n_studies == 1 else "pooled") if body_mass is None else \
         _origin_for(resolved, body_mass)
     return Cell(est.value, unit, origin, est.sd, est.se, est.low, est.high, est.sources, method,
-                verified_share=resolved.verified_share)
+                verified_share=resolved.verified_share, conditions=_conditions(resolved.rows))
+
+
+def _conditions(rows) -> tuple[str, ...]:
+    """The states other than rest of the animals behind a number (vocab/conditions.csv)."""
+    return tuple(sorted({r["condition_id"] for r in rows if r.get("condition_id", AT_REST) != AT_REST}))
 
 
 def _sum_cells(cells: list[Cell], unit: str, what: str) -> Cell:
@@ -66,7 +72,8 @@ def _sum_cells(cells: list[Cell], unit: str, what: str) -> Cell:
     sources = tuple(dict.fromkeys(s for c in cells for s in c.sources))
     masses = [c.mass for c in cells]
     return Cell(sum(c.value for c in cells), unit, origin, None, se, None, None, sources, f"sum of {what}",
-                verified_share=_weighted_share(cells), mass=None if None in masses else sum(masses))
+                verified_share=_weighted_share(cells), mass=None if None in masses else sum(masses),
+                conditions=tuple(sorted({k for c in cells for k in c.conditions})))
 
 
 def _weighted_share(cells: list[Cell]) -> float | None:
@@ -191,7 +198,7 @@ class ParameterSet:
 def _flat(cell: Cell) -> dict:
     return {"value": cell.value if cell.value is not None else np.nan, "unit": cell.unit,
             "sd": cell.sd, "se": cell.se, "low": cell.low, "high": cell.high, "origin": cell.origin,
-            "verified_share": cell.verified_share,
+            "verified_share": cell.verified_share, "conditions": "; ".join(cell.conditions),
             "sources": "; ".join(cell.sources), "method": cell.method, "note": cell.reason,
             "depends_on": "; ".join(cell.depends_on)}
 
@@ -332,7 +339,7 @@ def _combined(parts: list[Cell], value: float, method: str) -> Cell:
     sources = tuple(dict.fromkeys(s for c in parts for s in c.sources))
     depends = tuple(dict.fromkeys(d for c in parts for d in c.depends_on))
     return Cell(value, "L/h", "scaled", None, None, None, None, sources, method, depends_on=depends,
-                verified_share=_weighted_share(parts))
+                verified_share=_weighted_share(parts), conditions=tuple(sorted({k for c in parts for k in c.conditions})))
 
 
 def _from_other_stage(store, species, life_stage, number, **rows) -> Cell | None:
@@ -473,6 +480,7 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
     source_sum_checks(resolver, ps)
     class_check(resolver, ps)
     temperature_check(resolver, ps)
+    condition_check(ps)
     if bw_cell.origin == "given":
         studied_range_check(resolver, ps)
     for comp, cell in ps.volumes.items():

@@ -189,7 +189,7 @@ class Resolver(CountedRows):
                     per = 1.0 if r["normalisation"] == "body_mass" else 1.0 / self.subject_mass(r)
                     borrows = r["normalisation"] != "body_mass" and r["subject_body_mass_kg"] is None
                 candidates.append(dict(self._routed(r, quantity, per if by_volume else per / density),
-                                       _borrows=borrows))
+                                       _borrows=borrows, _typical_mass=borrows))
         if not candidates or not any(r["verified"] for r in candidates):
             summed = self._from_parts(compartment, self.volume_per_kg, "volume, mass or mass fraction")
             if not candidates or self._read_parts_win(summed, candidates):
@@ -222,7 +222,8 @@ class Resolver(CountedRows):
                 routed = dict(self._routed(r, route, per), _over=how)
             else:
                 per = 1.0 if r["normalisation"] == "body_mass" else 1.0 / self.subject_mass(r)
-                routed = self._routed(r, route, per)
+                routed = dict(self._routed(r, route, per), _typical_mass=r["normalisation"] == "none"
+                              and r["subject_body_mass_kg"] is None)
             if not math.isnan(routed["_value"]):
                 out.append(routed)
         return out
@@ -249,6 +250,10 @@ class Resolver(CountedRows):
         return area / mass, f"per m² over the subjects' body surface ({formula['source']}{at})"
 
     def _resolved(self, rows: list[dict], notes: list[str]) -> Resolved:
+        typical = [r["row_id"] for r in rows if r.get("_typical_mass")]
+        if typical and self.body_mass.ok:  # say it: the number moves when other groups' body masses are added
+            notes = [*notes, f"{', '.join(typical)}: the source prints no body mass for these animals; taken at the "
+                             f"species' typical {self.body_mass.estimate.value:.3g} kg (pooled over its rows)"]
         absolute = [r for r in rows if self._is_absolute(r)]
         at = [self.subject_mass(r) for r in absolute] if len(absolute) == len(rows) else []
         estimate = _pool(rows)
@@ -369,7 +374,8 @@ class Resolver(CountedRows):
                     co, how = self._cardiac_output_for(r)
                     if co is not None:
                         candidates.append(dict(self._routed(r, quantity, 1.0 / co), _over=how,
-                                               _borrows=how == SPECIES_OUTPUT))
+                                               _borrows=how == SPECIES_OUTPUT, _typical_mass=how == SPECIES_OUTPUT
+                                               and r["subject_body_mass_kg"] is None))
                 elif r["normalisation"] == "tissue_mass":
                     factor, how = self._per_tissue_factor(r, compartment)
                     if factor is not None:

@@ -64,6 +64,8 @@ def _value_element(cell, quantity: str, compartment: str) -> ET.Element:
         attrs["mass_kg"] = _number(cell.mass)
     if cell.sources:
         attrs["sources"] = " ".join(cell.sources)
+    if cell.conditions:
+        attrs["conditions"] = " ".join(cell.conditions)
     if cell.method:
         attrs["method"] = cell.method
     if cell.origin == "gap":

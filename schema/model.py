@@ -139,6 +139,7 @@ REST_KP_LIKE = "muscle"
 # A fitted number whose 95 % prediction interval spans more than this factor is no use to a modeller: a
 # fill across species is refused, and a fit within one species gives way to pooling (project choice).
 MAX_INTERVAL_RATIO = 10.0
+AT_REST = "rest"  # the condition parameter sets describe: conscious animals at rest (vocab/conditions.csv)
 # project: with a Q10 near 2 (from memory, for fish metabolic rate) 3 °C changes a rate by about a quarter.
 TEMPERATURE_BAND = 3.0
 # Life stages to borrow from when a stage lacks a parameter, nearest first (common practice, no source).

@@ -656,6 +656,16 @@ def test_anaesthetised_rows_give_way_to_conscious_ones(tree, tmp_path):
     build(tree, tmp_path / "without.sqlite")
     resolver = Resolver(open_store(tmp_path / "without.sqlite"), "dog")
     assert [r["row_id"] for r in resolver.rows("cardiac_output", "whole_body")] == ["co_an"]
+    # and every output says so: the cell, its JSON and SBML, and a check naming the numbers
+    ps = open_store(tmp_path / "without.sqlite").parameter_set("dog", body_mass="10 kg")
+    assert ps.cardiac_output.conditions == ("anaesthesia",)
+    assert ps.to_dict()["cardiac_output"]["conditions"] == ["anaesthesia"]
+    assert 'conditions="anaesthesia"' in ps.to_sbml(allow_gaps=True)
+    check = next(c for c in ps.checks if c["check"] == "condition")
+    assert check["status"] == "warn" and check["detail"].startswith("cardiac_output") and "heart.volume" in check["detail"]
+    # co_an prints no body mass: its per-kg value is taken at the species' typical mass, and the set says so
+    assert "co_an: the source prints no body mass for these animals; taken at the species' typical" in \
+        ps.cardiac_output.method
 
 
 def test_gaps_point_only_to_rows_another_stage_would_count(tree, tmp_path):
