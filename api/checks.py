@@ -26,6 +26,12 @@ def close_balances(ps) -> None:
         ps.volumes[REST] = Cell.gap("L", "cannot close the mass balance: " +
                                     (", ".join(vol_gaps) + " lack a volume" if vol_gaps else "no body mass")
                                     ).resting_on(*vol_needs)
+        known = [v for v in vols if v.origin != "gap"]
+        if bw.origin != "gap" and known:  # the numbers there are can already exceed the whole
+            named_mass = sum(v.mass if v.mass is not None else v.value * REST_DENSITY for v in known)
+            ps.checks.append(_check("masses_within_body_mass", named_mass <= bw.value,
+                                    f"named compartments with a number {named_mass:.4g} kg against body mass "
+                                    f"{bw.value:.4g} kg ({', '.join(vol_gaps)} still gaps)"))
     else:
         named_mass = sum(v.mass if v.mass is not None else v.value * REST_DENSITY for v in vols)
         rest_mass = bw.value - named_mass
@@ -44,6 +50,13 @@ def close_balances(ps) -> None:
         ps.flows[REST] = Cell.gap("L/h", "cannot close the flow balance: " +
                                   (", ".join(flow_gaps) + " lack a flow" if flow_gaps else "no cardiac output")
                                   ).resting_on(*flow_needs)
+        known = [f.value for f in systemic.values() if f.origin != "gap"]
+        if co.origin != "gap" and known:  # the flows there are can already exceed the cardiac output
+            ps.checks.append(_check("systemic_flows_within_cardiac_output",
+                                    sum(known) <= co.value * (1 + FLOW_TOLERANCE),
+                                    f"named systemic flows with a number {sum(known):.4g} L/h against cardiac output "
+                                    f"{co.value:.4g} L/h (tolerance {FLOW_TOLERANCE:.0%}; {', '.join(flow_gaps)} "
+                                    "still gaps)"))
     else:
         named = sum(f.value for f in systemic.values())
         rest = co.value - named

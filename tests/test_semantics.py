@@ -715,3 +715,21 @@ def test_a_within_species_fit_close_to_its_rows_is_scaled_on(tree, tmp_path):
     fitted = _pig_brain_at_40_kg(tree, tmp_path, ["0.5", "0.3", "0.2"])
     assert fitted.estimate.method.startswith("within-species allometry")
     assert fitted.estimate.high / fitted.estimate.low <= 10
+
+
+def test_flows_that_already_exceed_the_cardiac_output_fail_before_the_balance_closes(tree, tmp_path):
+    """Goat kidney 70 % and muscle 60 % of cardiac output, other flows gaps (invented for tests): the flow
+    balance cannot close, yet the set already fails the cardiac-output check and names the gaps."""
+    from bodyplan import open_store
+
+    for row, comp, quantity, value, unit in [("bw", "whole_body", "body_mass", "50", "kg"),
+                                             ("co", "whole_body", "cardiac_output", "5", "L/min"),
+                                             ("qk", "kidney", "blood_flow_fraction", "70", "%"),
+                                             ("qm", "muscle", "blood_flow_fraction", "60", "%")]:
+        add(tree, V, id=row, species="goat", group="g", compartment=comp, quantity=quantity, value=value, unit=unit,
+            n="6", body_mass="50 kg" if row == "co" else "")
+    build(tree, tmp_path / "s.sqlite")
+    ps = open_store(tmp_path / "s.sqlite").parameter_set("goat")
+    assert ps.flows["rest_of_body"].origin == "gap"
+    check = next(c for c in ps.checks if c["check"] == "systemic_flows_within_cardiac_output")
+    assert check["status"] == "fail" and "still gaps" in check["detail"] and "heart" in check["detail"]
