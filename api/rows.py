@@ -116,18 +116,36 @@ class CountedRows:
     def _fallback(self) -> frozenset[str]:
         return frozenset(c for c, use in self._conditions.items() if use == "fallback")
 
+    @cached_property
+    def _fallback_classes(self) -> frozenset[str]:
+        """Classes a set that asks for none uses only where others lack the parameter (vocab/classes.csv)."""
+        if self.animal_class:
+            return frozenset()
+        return frozenset(r["id"] for r in self.store.query("SELECT id FROM classes WHERE species = ? AND in_sets = "
+                                                           "'fallback'", [self.species]))
+
+    def _second_choice(self, r: dict) -> str:
+        """Why a row counts only where no first-choice row gives its parameter: anaesthetised animals, or a
+        breed unlike the species' usual animals when no class is asked for; "" for a first-choice row."""
+        if r["condition_id"] in self._fallback:
+            return f"measured in condition {r['condition_id']}: rows of animals at rest exist (vocab/conditions.csv)"
+        if r["class_id"] in self._fallback_classes:
+            return (f"class {r['class_id']}: rows of the species' usual animals exist; ask for the class to use it "
+                    "(vocab/classes.csv)")
+        return ""
+
     def _awake_first(self, rows: list[dict]) -> list[dict]:
-        """Rows of a fallback condition (anaesthesia) give way, parameter by parameter, to rows of animals
-        at rest: an anaesthetised dog's kidney flow is not pooled with a conscious one's. A row read in its
-        source gives way only to read ones: a recalled number is no evidence against a read one."""
+        """Second-choice rows (anaesthetised animals; a breed unlike the species' usual animals, such as
+        greyhounds among dogs) give way, parameter by parameter, to first-choice rows: an anaesthetised dog's
+        kidney flow is not pooled with a conscious one's. A row read in its source gives way only to read
+        ones: a recalled number is no evidence against a read one."""
         what = lambda r: (parameter_of(r["quantity_id"]) or r["quantity_id"], r["compartment_id"])  # noqa: E731
-        at_rest = {(what(r), bool(r["verified"])) for r in rows if r["condition_id"] not in self._fallback}
+        first = {(what(r), bool(r["verified"])) for r in rows if not self._second_choice(r)}
         kept = []
         for r in rows:
-            if r["condition_id"] in self._fallback and ((what(r), True) in at_rest or
-                                                        (not r["verified"] and (what(r), False) in at_rest)):
-                self.left_out[(r["source_id"], r["row_id"])] = (f"measured in condition {r['condition_id']}: rows of "
-                                                                "animals at rest exist (vocab/conditions.csv)")
+            why = self._second_choice(r)
+            if why and ((what(r), True) in first or (not r["verified"] and (what(r), False) in first)):
+                self.left_out[(r["source_id"], r["row_id"])] = why
             else:
                 kept.append(r)
         return kept

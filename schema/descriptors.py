@@ -220,6 +220,12 @@ CLASSES = {
         field("species", description="Species id from vocab/species.csv.", required=True, foreign="species"),
         field("id", description="Class id, unique within the species.", required=True, pattern=ID),
         field("label", description="Name in words.", required=True),
+        field("in_sets", description="yes if a parameter set that asks for no class uses rows of this class; "
+              "fallback if it uses them only where no row of a yes class (or of no class) gives the same "
+              "parameter (breeds unlike the species' usual animals). A set that asks for the class uses them.",
+              required=True, enum=["yes", "fallback"]),
+        field("reason", description="Why a class is fallback: a published source (authors, year) or 'common "
+              "practice, no source'."),
         field("description", description="What the class covers."),
     ],
 }

@@ -98,6 +98,8 @@ class SpeciesClass(SQLModel, table=True):
     species: str = Field(sa_column=Column(String, ForeignKey("species.id"), primary_key=True))
     id: str = Field(primary_key=True)
     label: str
+    in_sets: str
+    reason: Optional[str] = None
     description: Optional[str] = None
 
 

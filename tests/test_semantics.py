@@ -733,3 +733,30 @@ def test_flows_that_already_exceed_the_cardiac_output_fail_before_the_balance_cl
     assert ps.flows["rest_of_body"].origin == "gap"
     check = next(c for c in ps.checks if c["check"] == "systemic_flows_within_cardiac_output")
     assert check["status"] == "fail" and "still gaps" in check["detail"] and "heart" in check["detail"]
+
+
+def test_a_breed_unlike_the_usual_animals_counts_only_when_asked_or_alone(tree, tmp_path):
+    """Dog heart as % of body mass: mongrels 0.8 %, greyhounds 1.2 % (invented for tests). Sighthounds are a
+    fallback class (vocab/classes.csv): a set for dogs in general leaves them out and says why, a set for
+    sighthounds uses them, and without any other dogs' row they count."""
+    from bodyplan import open_store
+    from bodyplan.api.resolve import Resolver
+
+    vocab = tree / "vocab" / "classes.csv"
+    assert ",sighthound,sighthound,fallback," in vocab.read_text()
+    add(tree, V, id="h_mongrel", group="m", compartment="adipose", quantity="tissue_mass_fraction", value="0.8",
+        unit="%", n="10", **{"class": "mongrel"})
+    add(tree, V, id="h_grey", group="s", compartment="adipose", quantity="tissue_mass_fraction", value="1.2", unit="%",
+        n="10", **{"class": "sighthound"})
+    build(tree, tmp_path / "s.sqlite")
+    store = open_store(tmp_path / "s.sqlite")
+    general = Resolver(store, "dog")
+    assert [r["row_id"] for r in general.rows("tissue_mass_fraction", "adipose")] == ["h_mongrel"]
+    assert general.left_out[("testsource2020", "h_grey")].startswith("class sighthound: rows of the species' usual")
+    hounds = Resolver(store, "dog", animal_class="sighthound")
+    assert [r["row_id"] for r in hounds.rows("tissue_mass_fraction", "adipose")] == ["h_grey"]
+    lines = (tree / V).read_text().splitlines(keepends=True)
+    (tree / V).write_text("".join(line for line in lines if not line.startswith("h_mongrel,")))
+    build(tree, tmp_path / "alone.sqlite")
+    alone = Resolver(open_store(tmp_path / "alone.sqlite"), "dog")
+    assert [r["row_id"] for r in alone.rows("tissue_mass_fraction", "adipose")] == ["h_grey"]
