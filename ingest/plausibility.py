@@ -7,7 +7,7 @@ import re
 import numpy as np
 import pandas as pd
 
-from ..schema.model import LIVER, PORTAL_ORGANS, SHARES_OF_A_WHOLE
+from ..schema.model import LIVER, PARTS_FOR_THE_WHOLE, PORTAL_ORGANS, SHARES_OF_A_WHOLE
 from ..units import UnitError, conversion
 from .findings import Findings
 from .read import CuratedTree
@@ -83,7 +83,7 @@ def check_sums(frame: pd.DataFrame, tree: CuratedTree, findings: Findings) -> No
 OUTLIER_FACTOR = 3.0  # common practice, no source: a 3-fold gap between studies of one parameter is worth a look
 GROWING = {"neonate", "juvenile"}
 AGE_FACTOR = 1.5  # common practice, no source: ages within 1.5-fold count as the same point of growth
-PARAMETER = ["species", "life_stage", "compartment", "quantity", "_unit_canonical"]
+PARAMETER = ["species", "life_stage", "compartment", "quantity", "_unit_canonical", "_amount"]
 
 
 def _fmt(x: float) -> str:
@@ -133,7 +133,8 @@ def check_outliers(frame: pd.DataFrame, findings: Findings, factor: float = OUTL
     Rows sharing a comparison set (the whole parameter, or one stated age of a growing stage)
     are compared at once, with numpy, so the cost grows with the number of parameters, not rows².
     """
-    rows = _positive(frame)
+    # a piece of an organ (a ventricle, a segment, one side) is compared only with the same piece
+    rows = _positive(frame).assign(_amount=lambda f: f["_part"].where(~f["_part"].isin(PARTS_FOR_THE_WHOLE), "whole"))
     source = rows["_source"].to_numpy(dtype=object)
     value = rows["_value_canonical"].to_numpy(dtype=float)
     age = rows["_age_days"].to_numpy(dtype=float)

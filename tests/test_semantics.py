@@ -760,3 +760,17 @@ def test_a_breed_unlike_the_usual_animals_counts_only_when_asked_or_alone(tree, 
     build(tree, tmp_path / "alone.sqlite")
     alone = Resolver(open_store(tmp_path / "alone.sqlite"), "dog")
     assert [r["row_id"] for r in alone.rows("tissue_mass_fraction", "adipose")] == ["h_grey"]
+
+
+def test_a_piece_of_an_organ_is_compared_only_with_the_same_piece(tree):
+    """Whole dog hearts of 100 and 110 g and one right ventricle of 20 g (invented for tests): the ventricle
+    is not an outlier among whole hearts (W303 compares the same piece only), but the other source's 200 g
+    ventricle is ten times the first."""
+    for file, row, part, grams in [(V, "whole_a", "tissue", "100"), (W, "whole_b", "tissue", "110"),
+                                   (V, "rv", "ventricle", "20")]:
+        add(tree, file, id=row, group=row, compartment="heart", quantity="tissue_mass", part=part, value=grams,
+            unit="g", n="5", body_mass="10 kg")
+    assert [w for w in warnings(tree, "W303") if "heart" in w] == []
+    line = add(tree, W, id="rv2", group="rv2", compartment="heart", quantity="tissue_mass", part="ventricle",
+               value="200", unit="g", n="5", body_mass="10 kg")
+    assert [w for w in warnings(tree, "W303") if w.startswith(f"{W}:{line}:")]
