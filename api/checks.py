@@ -4,7 +4,7 @@ animals behind the set's rows."""
 
 from __future__ import annotations
 
-from ..schema.model import LIVER, PORTAL_ORGANS, SHARES_OF_A_WHOLE, TEMPERATURE_BAND, is_pulmonary, parameter_of
+from ..schema.model import LIVER, PORTAL_ORGANS, SHARES_OF_A_WHOLE, TEMPERATURE_BAND, is_pulmonary, parameter_of, slot_id
 from .cell import Cell
 from .layouts import REST
 from .rows import SAME_SUBJECTS
@@ -28,12 +28,12 @@ def close_balances(ps) -> None:
                                     ).resting_on(*vol_needs)
         known = [v for v in vols if v.origin != "gap"]
         if bw.origin != "gap" and known:  # the numbers there are can already exceed the whole
-            named_mass = sum(v.mass if v.mass is not None else v.value * REST_DENSITY for v in known)
+            named_mass = sum(_mass(v) for v in known)
             ps.checks.append(_check("masses_within_body_mass", named_mass <= bw.value,
                                     f"named compartments with a number {named_mass:.4g} kg against body mass "
                                     f"{bw.value:.4g} kg ({', '.join(vol_gaps)} still gaps)"))
     else:
-        named_mass = sum(v.mass if v.mass is not None else v.value * REST_DENSITY for v in vols)
+        named_mass = sum(_mass(v) for v in vols)
         rest_mass = bw.value - named_mass
         ps.volumes[REST] = Cell(rest_mass / REST_DENSITY, "L", "scaled", method=(
             f"body mass minus the named compartments' masses (volume × tissue density), at {REST_DENSITY:g} kg/L"),
@@ -67,6 +67,11 @@ def close_balances(ps) -> None:
                                 f"(tolerance {FLOW_TOLERANCE:.0%})"))
         ps.checks.append(_check("rest_of_body_flow_not_negative", rest >= 0,
                                 f"rest_of_body flow {rest:.4g} L/h"))
+
+
+def _mass(volume: Cell) -> float:
+    """A named compartment's mass: its volume through the tissue density used, else at REST_DENSITY."""
+    return volume.mass if volume.mass is not None else volume.value * REST_DENSITY
 
 
 def _check(name: str, ok: bool, detail: str) -> dict:
@@ -125,8 +130,6 @@ def studied_range_check(resolver, ps) -> None:
 
 def condition_check(ps) -> None:
     """Numbers that rest on animals not at rest (anaesthetised ones, where no conscious animals' rows exist)."""
-    from ..schema.model import slot_id
-
     behind = {}
     for comp, parameter, cell in ps.cells():
         for condition in cell.conditions:

@@ -61,7 +61,7 @@ class CountedRows:
                 self.left_out[(r["source_id"], r["row_id"])] = why
             else:
                 kept.append(r)
-        kept = self._awake_first(kept)
+        kept = self._first_choice_first(kept)
         by_measure: dict[tuple, list[dict]] = defaultdict(list)
         for r in kept:  # one quantity of one compartment, however it is normalised (mL/min or mL/min/kg)
             by_measure[(r["source_id"], r["quantity_id"], r["compartment_id"])].append(r)
@@ -134,7 +134,7 @@ class CountedRows:
                     "(vocab/classes.csv)")
         return ""
 
-    def _awake_first(self, rows: list[dict]) -> list[dict]:
+    def _first_choice_first(self, rows: list[dict]) -> list[dict]:
         """Second-choice rows (anaesthetised animals; a breed unlike the species' usual animals, such as
         greyhounds among dogs) give way, parameter by parameter, to first-choice rows: an anaesthetised dog's
         kidney flow is not pooled with a conscious one's. A row read in its source gives way only to read

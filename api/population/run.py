@@ -226,8 +226,8 @@ def build_sidecar(spec: PopulationSpec, n: int, seed: int, means: dict, stats: l
             "exceed its cardiac output) has its volume (or flow) shares shrunk in proportion until they fit")
     return {
         "species": spec.species, "life_stage": spec.life_stage, "sex": spec.sex, "layout": spec.layout,
-        "fill": spec.fill, "filled": spec.filled,
-        "temperature_c": None if spec.parameter_set is None else spec.parameter_set.temperature, "n": n, "seed": seed, "grid": GRID,
+        "fill": spec.fill, "filled": spec.filled, "n": n, "seed": seed, "grid": GRID,
+        "temperature_c": None if spec.parameter_set is None else spec.parameter_set.temperature,
         "random_numbers": "numpy PCG64; block i of the grid draws from SeedSequence(seed, spawn_key=(1, i)), "
                           "the population-level means from spawn_key=(0,)",
         "data": None if path is None else {"file": Path(path).name, "format": fmt},
