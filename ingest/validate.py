@@ -168,21 +168,36 @@ def _plain(text: str) -> str:
     return re.sub(r"[^a-z0-9]", "", re.sub(r"\\[a-zA-Z]+|\\.", "", text).lower())
 
 
+SAME_PUBLICATION = {"doi": "DOI", "title": "title and year", "pages": "journal, volume and first page"}
+
+
+def _publication_keys(fields: dict) -> dict[str, tuple]:
+    """What names one publication: its DOI, its title and year, or where it is printed (an entry whose
+    title was not seen is still one paper of one journal volume, starting on one page)."""
+    keys = {}
+    doi = fields.get("doi", "").strip().lower().removeprefix("https://doi.org/")
+    if doi:
+        keys["doi"] = (doi,)
+    title = _plain(fields.get("title", ""))
+    if len(title) > 20:
+        keys["title"] = (title, fields.get("year", "").strip())
+    journal, volume = _plain(fields.get("journal", "")), fields.get("volume", "").strip()
+    first_page = re.split(r"\s*(?:-|–|--)\s*", fields.get("pages", "").strip())[0].lower()
+    if journal and volume and first_page:
+        keys["pages"] = (journal, volume, first_page)
+    return keys
+
+
 def check_one_entry_per_publication(sources: list[dict], findings: Findings) -> None:
     """One publication is one source: its rows would otherwise count the same animals twice. Two entries
-    are one publication when they share a DOI, or a title and year."""
+    are one publication when they share a DOI, a title and year, or a journal, volume and first page."""
     first: dict[tuple, dict] = {}
     for src in sources:
-        fields = src["fields"]
-        doi = fields.get("doi", "").strip().lower().removeprefix("https://doi.org/")
-        title = _plain(fields.get("title", ""))
-        for column, key in (("doi", ("doi", doi) if doi else None),
-                            ("title", ("title", title, fields.get("year", "").strip()) if len(title) > 20 else None)):
-            if key is None:
-                continue
+        for column, key in _publication_keys(src["fields"]).items():
+            key = (column, *key)
             if key in first and first[key]["key"] != src["key"]:
                 findings.error(BIB_FILE, src["line"], column, f"entry {src['key']!r} has the "
-                               f"{'DOI' if column == 'doi' else 'title and year'} of "
+                               f"{SAME_PUBLICATION[column]} of "
                                f"{first[key]['key']!r} (line {first[key]['line']}); one publication is one source: "
                                "keep one entry and move its rows into that source's values file", code="V242")
                 break

@@ -267,6 +267,22 @@ def test_one_publication_is_one_source_by_title_and_year(tree):
                              "rows into that source's values file", "V242")]
 
 
+def test_one_publication_is_one_source_by_journal_volume_and_first_page(tree):
+    """An entry whose title was not seen (only a table caption) is still the paper printed in that journal
+    volume from that page; a page range and a bare first page name the same paper."""
+    add_bib_field(tree, "testsource2020", "journal = {J. Invented Tests},\n  volume = {40},\n  pages = {795--812}")
+    add_bib_field(tree, "testsource2021", "journal = {J. invented  tests},\n  volume = {40},\n  pages = {795}")
+    assert errors(tree) == [("sources.bib:11: pages: entry 'testsource2021' has the journal, volume and first page "
+                             "of 'testsource2020' (line 1); one publication is one source: keep one entry and move "
+                             "its rows into that source's values file", "V242")]
+
+
+def test_two_papers_of_one_volume_are_two_sources(tree):
+    add_bib_field(tree, "testsource2020", "journal = {J. Invented Tests},\n  volume = {40},\n  pages = {795--812}")
+    add_bib_field(tree, "testsource2021", "journal = {J. Invented Tests},\n  volume = {40},\n  pages = {813--820}")
+    assert errors(tree) == []
+
+
 def test_derived_from_reaches_the_store(tree, tmp_path):
     import sqlite3
 
