@@ -79,7 +79,7 @@ CODES: dict[str, str] = {
     "V241": 'A k given for a formula that takes none. Leave k empty.',
     "V243": 'A blood flow per mass that does not say per which mass. Set denominator to tissue (per kg of the organ, as in mL/min/100 g) or live_body (per kg of body mass).',
     "V244": 'A temperature given for a mammal or bird. Clear it; heat or cold stress goes in condition.',
-    "V242": 'Two entries in sources.bib share a DOI, or a title and year: one publication counted as two sources. Keep one entry.',
+    "V242": 'Two entries in sources.bib share a DOI, a title and year, or a journal, volume and first page: one publication counted as two sources. Keep one entry.',
     "W301": "The value lies outside the quantity's plausible range. Check the unit and the digits.",
     "W302": "Fractions of one animal group in one source sum to an odd total. Look for a part counted with its "
             "whole, a missing organ, or a '%' read as '1'.",
