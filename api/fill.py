@@ -18,11 +18,15 @@ def _peer_sets(store, species: str, stage: str, layout) -> dict:
     cache = store.__dict__.setdefault("_peer_sets", {})
     key = (stage, layout.name, repr(sorted(layout.compartments.items())))
     if key not in cache:
+        from .layouts import LayoutError
         from .parameters import parameter_set
 
         peers = {}
         for other in store.ids("species"):
-            peers[other] = parameter_set(store, other, life_stage=stage, layout=layout, fill="none")
+            try:
+                peers[other] = parameter_set(store, other, life_stage=stage, layout=layout, fill="none")
+            except LayoutError:  # a body the layout does not fit (a fish's, for lungs) is no peer
+                continue
         cache[key] = peers
     return {k: v for k, v in cache[key].items() if k != species}
 

@@ -14,11 +14,12 @@ Three views, all plain DataFrames:
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import pandas as pd
 
 from ..schema.model import SCALED_SHARES, Slot, default_layout, slots, sub_parts
+from .layouts import Layout, LayoutError, load_layout
 
 NOT_IN_LAYOUT = "not in its layout"  # a slot the species' own layout does not have (lungs of a fish)
 NOT_IN_LAYOUT_HELP = "the species' own layout has no such compartment (a fish has gills, not lungs)"
@@ -60,6 +61,14 @@ class GapReport:
     most_wanted: pd.DataFrame  # slot, species_made_ready, gaps_closed_alone, species_needing, species
     sources: pd.DataFrame  # id, citation of every source behind a covered cell
     composition: pd.DataFrame = None  # per species: tissues whose composition lets each Kp method run
+    species_left_out: dict = field(default_factory=dict)  # species → why the layout asked for does not fit it
+
+    def left_out_lines(self) -> list[str]:
+        """One line per reason, naming its species."""
+        by_reason: dict[str, list[str]] = {}
+        for sp, why in self.species_left_out.items():
+            by_reason.setdefault(why, []).append(sp)
+        return [f"left out {', '.join(sps)}: {why}" for why, sps in by_reason.items()]
 
     @property
     def under_studied(self) -> pd.DataFrame:
@@ -86,7 +95,7 @@ class GapReport:
                           for p in self.slots],
                 "readiness": records(self.under_studied), "most_wanted": records(self.most_wanted),
                 "coverage": records(self.coverage), "sources": records(self.sources),
-                "composition": records(self.composition)}
+                "composition": records(self.composition), "species_left_out": self.species_left_out}
 
 
 def _rows(store, species: list[str] | None) -> pd.DataFrame:
@@ -270,8 +279,6 @@ def gap_report(store, species=None, life_stage: str = "adult", layout=None) -> G
     """Coverage, readiness and most-wanted slots for the species asked for (default: all in the store).
     Without a layout each species is read in its own default one (fish: fish, with gills and no lungs);
     a slot outside a species' layout has no cell for it."""
-    from .layouts import Layout, load_layout
-
     if species is None or len(species) == 0:
         species = store.ids("species")
     else:
@@ -280,9 +287,10 @@ def gap_report(store, species=None, life_stage: str = "adult", layout=None) -> G
             store.require("species", sp, "species")
     if life_stage != "all":
         store.require("life_stages", life_stage, "life stage")
+    species_left_out: dict[str, str] = {}
     known = set(store.ids("compartments"))
+    taxon = dict(store.query("SELECT id, taxon_class FROM species"))
     if layout is None:
-        taxon = dict(store.query("SELECT id, taxon_class FROM species"))
         by_layout: dict[str, list[str]] = {}
         for sp in species:
             by_layout.setdefault(default_layout(taxon[sp]), []).append(sp)
@@ -290,7 +298,7 @@ def gap_report(store, species=None, life_stage: str = "adult", layout=None) -> G
         groups = [(load_layout(lay, known), group) for lay, group in by_layout.items()]
     else:
         lay = layout if isinstance(layout, Layout) else load_layout(layout, known)
-        groups, name = [(lay, species)], lay.name
+        name, groups = lay.name, _fitting(lay, species, taxon, species_left_out)
     coverages, readinesses, tables, params = [], [], {}, {}
     for lay, group in groups:
         coverage, slots_of = coverage_table(store, lay, group, life_stage)
@@ -317,4 +325,24 @@ def gap_report(store, species=None, life_stage: str = "adult", layout=None) -> G
 
     composition = composition_readiness(store, list(dict.fromkeys(coverage["species"])),
                                         "adult" if life_stage == "all" else life_stage)
-    return GapReport(name, life_stage, params, coverage, readiness, most_wanted, sources, composition)
+    return GapReport(name, life_stage, params, coverage, readiness, most_wanted, sources, composition,
+                     species_left_out)
+
+
+def _fitting(layout, species: list[str], taxon: dict[str, str], left_out: dict[str, str]) -> list[tuple]:
+    """The species in groups that share the layout as their bodies have it (a fish's richly perfused
+    tissues have no lung); a species the layout does not fit goes to ``left_out`` with the reason, and
+    when none fits the layout is refused."""
+    by_class: dict[str, list[str]] = {}
+    for sp in species:
+        by_class.setdefault(taxon[sp], []).append(sp)
+    groups, refusal = [], None
+    for taxon_class, group in by_class.items():
+        try:
+            groups.append((layout.for_animal(group[0], taxon_class), group))
+        except LayoutError as exc:
+            refusal = exc
+            left_out.update({sp: str(exc).removeprefix(f"{group[0]}: ") for sp in group})
+    if not groups:
+        raise refusal
+    return groups

@@ -8,6 +8,7 @@ import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 
+from ..schema.model import LACKS
 from .locate import bundled_data_dir
 
 REST = "rest_of_body"
@@ -25,6 +26,20 @@ class Layout:
 
     def members(self) -> set[str]:
         return {c for parts in self.compartments.values() for c in parts}
+
+    def for_animal(self, species: str, taxon_class: str) -> "Layout":
+        """This layout as the animal's body has it: a lumped compartment without the organs its taxon
+        lacks (a fish's richly perfused tissues have no lung); refused when a model compartment is only
+        such organs (a whole-body layout's lung, for a fish)."""
+        lacks = LACKS.get(taxon_class, frozenset())
+        missing = [model for model, parts in self.compartments.items() if set(parts) <= lacks]
+        if missing:
+            fitting = [name for name in builtin_layouts() if not any(
+                set(parts) <= lacks for parts in load_layout(name).compartments.values())]
+            raise LayoutError(f"{species}: a {taxon_class} has no {', '.join(missing)}, which the "
+                              f"{self.name} layout needs; use --layout {' or '.join(fitting)}")
+        kept = {model: [c for c in parts if c not in lacks] for model, parts in self.compartments.items()}
+        return self if kept == self.compartments else Layout(self.name, self.description, kept)
 
 
 def builtin_layouts() -> list[str]:

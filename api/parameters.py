@@ -413,15 +413,16 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
         raise ParameterSetError(f"sex must be male or female (or omitted), not {sex!r}")
     store.require("species", species, "species")
     store.require("life_stages", life_stage, "life stage")
+    taxon = store.query("SELECT taxon_class FROM species WHERE id = ?", (species,))[0][0]
     if layout is None:
-        layout = default_layout(store.query("SELECT taxon_class FROM species WHERE id = ?", (species,))[0][0])
+        layout = default_layout(taxon)
     lay = layout if isinstance(layout, Layout) else load_layout(layout, set(store.ids("compartments")))
+    lay = lay.for_animal(species, taxon)
     if animal_class is not None and not store.query("SELECT 1 FROM classes WHERE species = ? AND id = ?",
                                                      (species, animal_class)):
         known = [r[0] for r in store.query("SELECT id FROM classes WHERE species = ? ORDER BY id", (species,))]
         raise ParameterSetError(f"{species} has no class {animal_class!r}; "
                                 f"{'its classes: ' + ', '.join(known) if known else 'none is curated'}")
-    taxon = store.query("SELECT taxon_class FROM species WHERE id = ?", (species,))[0][0]
     celsius = _temperature_option(temperature, species, taxon)
     rows = dict(sex=sex, verified_only=verified_only, animal_class=animal_class, temperature=celsius)
     resolver = Resolver(store, species, life_stage, **rows)

@@ -27,6 +27,9 @@ LIVER = "liver"
 PULMONARY = frozenset({"lung", "gills"})
 # The layout a parameter set uses unless one is asked for, by taxon class: fish breathe with gills.
 DEFAULT_LAYOUT = {"fish": "fish"}
+# Organs a taxon class does not have (common practice, no source): a layout compartment made only of
+# them does not fit the animal, and a lumped compartment is summed over the parts the animal has.
+LACKS = {"fish": frozenset({"lung"}), "mammal": frozenset({"gills"}), "bird": frozenset({"gills"})}
 
 
 def default_layout(taxon_class: str) -> str:

@@ -316,3 +316,29 @@ def test_gfr_scales_per_kg_and_hematocrit_is_not_scaled(toy_store):
     ferret = toy_store.parameter_set("ferret")
     assert {"compartment": "blood", "quantity": "hematocrit",
             "reason": "no hematocrit stored for ferret (adult)"} in ferret.gaps
+
+
+# ---- a layout fits the animal's body -------------------------------------------------------------
+def test_a_layout_with_lungs_is_refused_for_a_fish_with_the_layouts_that_fit(real_store):
+    """A fish has gills, not lungs (common practice, no source): a whole-body set would have to place a lung
+    between venous and arterial blood, so it is refused and the message names the layouts that fit."""
+    with pytest.raises(LayoutError, match=r"rainbow_trout: a fish has no lung, which the whole_body layout needs; "
+                                          r"use --layout fish or rich_slow"):
+        real_store.parameter_set("rainbow_trout", layout="whole_body")
+    with pytest.raises(LayoutError, match=r"rat: a mammal has no gills, which the fish layout needs"):
+        real_store.parameter_set("rat", layout="fish")
+
+
+def test_a_lumped_compartment_is_summed_over_the_organs_the_animal_has(real_store):
+    fish = real_store.parameter_set("rainbow_trout", life_stage="juvenile", layout="rich_slow")
+    mammal = real_store.parameter_set("rat", layout="rich_slow")
+    assert "lung" in mammal.layout.compartments["richly_perfused"]
+    assert fish.layout.compartments["richly_perfused"] == [
+        c for c in mammal.layout.compartments["richly_perfused"] if c != "lung"]
+
+
+def test_a_gap_report_in_a_layout_no_species_asked_for_fits_is_refused(real_store):
+    with pytest.raises(LayoutError, match="a fish has no lung"):
+        real_store.gap_report(["rainbow_trout", "atlantic_salmon"], layout="whole_body")
+    both = real_store.gap_report(["rainbow_trout", "rat"], layout="whole_body")
+    assert set(both.readiness["species"]) == {"rat"} and set(both.species_left_out) == {"rainbow_trout"}

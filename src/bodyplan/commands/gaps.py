@@ -74,6 +74,8 @@ def gaps_cmd(species, stage, layout, fmt, out, force, store_path):
                               "available_verified": "verified", "available_unverified": "unverified",
                               "covered_slots": "slots with data", "waits_on": "to curate"}),
              fmt, title=f"Readiness ({report.layout} layout), least ready first")
+        for line in report.left_out_lines():
+            click.echo(line)
         emit(report.most_wanted[["slot", "species_made_ready", "gaps_closed_alone", "species_needing"]]
              .head(15), fmt, title="Most wanted: curating this closes the most gaps")
         counts = report.coverage.pivot_table(index=["species", "life_stage"], columns="state", values="slot",

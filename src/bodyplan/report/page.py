@@ -82,6 +82,7 @@ def gap_report_html(report: GapReport, png: bytes | None = None, store_info: dic
         " Readiness is the share of the layout's parameter set (body weight, cardiac output, GFR, hematocrit, "
         "volume and blood flow per compartment; rest_of_body left out) that the store supplies without "
         "filling; verified % the share whose weight rests mostly on rows read in their source text.</p>",
+        *(f'<p class="note">{escape(line.capitalize())}.</p>' for line in report.left_out_lines()),
         "<h2>Coverage</h2>",
         f'<img id="heatmap" alt="coverage heatmap: species by parameter, coloured by state" '
         f'src="data:image/png;base64,{image}">',

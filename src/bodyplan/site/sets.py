@@ -116,6 +116,7 @@ class SiteData:
                 "cells": cells,
                 "readiness": readiness,
                 "keys": list(readiness),
+                "left_out": report.left_out_lines(),
             }
         return out
 
