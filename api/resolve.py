@@ -282,9 +282,14 @@ class Resolver(CountedRows):
     # ---- whole-body rates and blood fractions ------------------------------------------------
     def per_body_mass(self, quantity: str, compartment: str) -> Resolved:
         """A rate such as GFR per kg body weight, from absolute (over the subjects' mass) or per-kg rows."""
-        rows = [r for r in self.rows(quantity, compartment) if r["normalisation"] in ("none", "body_mass",
-                                                                                        "body_surface")]
-        rows = self._per_body_mass(self.read_first(rows), quantity)
+        stored = [r for r in self.rows(quantity, compartment) if r["normalisation"] in ("none", "body_mass",
+                                                                                          "body_surface")]
+        rows = self._per_body_mass(self.read_first(stored), quantity)
+        absolute = [r for r in stored if r["normalisation"] == "none"]
+        if not rows and absolute:  # absolute numbers whose animals' mass is neither stored nor typical
+            return _gap(f"{len(absolute)} absolute {quantity} row(s) of {self.species} ({self.life_stage}) "
+                        "lack their animals' body mass, and no body mass is stored for this stage to "
+                        "stand in; curate the animals' body mass")
         if not rows:
             return _gap(f"no {quantity} per body mass or absolute stored for {self.species} ({self.life_stage})")
         return self._resolved(rows, sorted({r["_over"] for r in rows if "_over" in r}))

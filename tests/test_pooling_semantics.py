@@ -182,3 +182,18 @@ def test_one_kidney_doubled_stands_for_the_pair_and_says_so(store):
     assert any("one side doubled" in note for note in pair.notes)
     combined = trace(store, "sheep", "blood_flow", "kidney").combined
     assert "one side doubled" in combined[0]["method"]
+
+
+def test_absolute_rows_without_any_body_mass_say_what_is_missing(store_from_tree, tmp_path):
+    """Invented for tests: a pregnant stage with GFR printed in mL/min only, no body mass for its animals and
+    none stored for the stage: the gap names the missing body mass, not a missing GFR."""
+    (tmp_path / "values").mkdir()
+    (tmp_path / "values" / "nomass2026.csv").write_text(
+        HEADER + "gfr,rat,pregnant,,female,,,all,whole_body,gfr,,inulin_clearance,,2.7,mL/min,none,,,,mean,no,6,"
+        "animals,,,,measured,Abstract,yes,,invented for tests: body mass not printed\n")
+    (tmp_path / "sources.bib").write_text("@misc{nomass2026,\n  title = {Invented for tests nomass2026},\n"
+                                          "  year = {2026},\n  note = {invented for tests}\n}\n")
+    resolved = Resolver(store_from_tree(tmp_path), "rat", "pregnant").resolve("gfr")
+    assert resolved.estimate is None
+    assert resolved.reason == ("1 absolute gfr row(s) of rat (pregnant) lack their animals' body mass, and no body "
+                               "mass is stored for this stage to stand in; curate the animals' body mass")
