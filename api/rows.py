@@ -13,7 +13,8 @@ from collections import defaultdict
 from functools import cached_property
 
 from ..schema.descriptors import DENOMINATORS
-from ..schema.model import TEMPERATURE_BAND, body_plan, parameter_of, stands_for_the_whole
+from ..schema.model import (TEMPERATURE_BAND, body_plan, measured_compartment, parameter_of,
+                            stands_for_the_whole)
 
 ROW_COLUMNS = ("source_id, row_id, compartment_id, quantity_id, normalisation, value_canonical, sd_canonical, "
                "n, subject_body_mass_kg, sex, strain, age, verified, file, line, group_id, part_id, method_id, "
@@ -45,7 +46,7 @@ class CountedRows:
         self.other_temperature: set[tuple[str, str]] = set()  # left out as measured far from the set's temperature
         self.groups: dict[tuple[str, str], list[dict]] = defaultdict(list)
         for r in self._what_counts(self.all_rows):
-            self.groups[(r["quantity_id"], r["compartment_id"])].append(r)
+            self.groups[(r["quantity_id"], measured_compartment(r["quantity_id"], r["compartment_id"]))].append(r)
 
     # ---- which rows count: parts, methods, reprints, the same animals once -------------------------
     def _what_counts(self, rows: list[dict]) -> list[dict]:

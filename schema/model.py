@@ -118,6 +118,16 @@ PARAMETERS: dict[str, Parameter] = {p.id: p for p in (
               "tissue:plasma concentration ratio", (), None,
               computed="tissue composition (COMPOSITION) and compound properties, in api/partition.py"),
 )}
+# Compartments a quantity is sampled from that stand for the whole (common practice, no source): the
+# hematocrit of an arterial sample (a fish's dorsal aorta) is the blood's. Volumes of such parts are not.
+SAMPLE_STANDS_FOR = {"hematocrit": {"arterial_blood": "blood"}}
+
+
+def measured_compartment(quantity: str, compartment: str) -> str:
+    """The compartment a row's number describes: its own, or the whole its sample stands for."""
+    return SAMPLE_STANDS_FOR.get(quantity, {}).get(compartment, compartment)
+
+
 # Shares of body mass that give an absolute quantity when multiplied by the subjects' body mass. (Water
 # fractions are left out: kg of water become litres only through a density.)
 BODY_MASS_SHARES = {"tissue_mass": "tissue_mass_fraction"}
@@ -237,13 +247,18 @@ def sub_parts(compartment: str, parts: dict[str, list[str]], exclude: set[str] =
     return out
 
 
+def _samples(parameter: Parameter) -> tuple[str, ...]:
+    return tuple(c for q in parameter.routes for c, whole in SAMPLE_STANDS_FOR.get(q, {}).items()
+                 if whole == parameter.compartment)
+
+
 def slots(layout, parts: dict[str, list[str]] | None = None) -> list[Slot]:
     """Every slot of a layout's parameter set: whole-body parameters, then each compartment's volume,
     then each compartment's flow (compartments without a flow of their own have no flow slot).
     With ``parts`` (whole → its parts, from the vocabulary) a slot also reads the parts of its stored
     compartments that the layout does not name itself, as parameter sets sum them."""
-    out = [Slot(p, PARAMETERS[p].label, p, PARAMETERS[p].compartment, (PARAMETERS[p].compartment,),
-                PARAMETERS[p].routes) for p in WHOLE_BODY]
+    out = [Slot(p, PARAMETERS[p].label, p, PARAMETERS[p].compartment,
+                (PARAMETERS[p].compartment, *_samples(PARAMETERS[p])), PARAMETERS[p].routes) for p in WHOLE_BODY]
     named = layout.members()
     stored = {model: tuple(dict.fromkeys(c for part in members
                                          for c in (part, *sub_parts(part, parts or {}, named))))

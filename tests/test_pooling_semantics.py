@@ -197,3 +197,17 @@ def test_absolute_rows_without_any_body_mass_say_what_is_missing(store_from_tree
     assert resolved.estimate is None
     assert resolved.reason == ("1 absolute gfr row(s) of rat (pregnant) lack their animals' body mass, and no body "
                                "mass is stored for this stage to stand in; curate the animals' body mass")
+
+
+def test_a_hematocrit_of_an_arterial_sample_is_the_bloods(store):
+    """Bushnell et al. 1998 (read in the abstract): dorsal-aortic hematocrit of adult rainbow trout, 24.5 %;
+    a sample's hematocrit is the blood's, while an arterial blood volume would only be a part of the blood."""
+    from bodyplan.schema.model import measured_compartment
+
+    resolved = Resolver(store, "rainbow_trout").resolve("hematocrit")
+    assert [r["compartment_id"] for r in resolved.rows] == ["arterial_blood"]
+    assert resolved.estimate.value == pytest.approx(0.245)
+    assert measured_compartment("hematocrit", "arterial_blood") == "blood"
+    assert measured_compartment("blood_volume", "arterial_blood") == "arterial_blood"
+    cover = store.gap_report(["rainbow_trout"], life_stage="adult").coverage.set_index("slot")
+    assert cover.loc["hematocrit", "n_values"] == 1
