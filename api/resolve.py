@@ -254,6 +254,10 @@ class Resolver(CountedRows):
         if typical and self.body_mass.ok:  # say it: the number moves when other groups' body masses are added
             notes = [*notes, f"{', '.join(typical)}: the source prints no body mass for these animals; taken at the "
                              f"species' typical {self.body_mass.estimate.value:.3g} kg (pooled over its rows)"]
+        for r in rows:
+            if r.get("_repeats"):
+                notes = [*notes, f"{r['row_id']}, {', '.join(i for i, _ in r['_repeats'])}: the same animals measured again "
+                                 "alike, averaged into one estimate (n counted once)"]
         absolute = [r for r in rows if self._is_absolute(r)]
         at = [self.subject_mass(r) for r in absolute] if len(absolute) == len(rows) else []
         estimate = _pool(rows)

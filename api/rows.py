@@ -22,6 +22,28 @@ ROW_COLUMNS = ("source_id, row_id, compartment_id, quantity_id, normalisation, v
 SAME_SUBJECTS = ("source_id", "group_id")  # rows of one source describing the same animals
 
 
+# Rows of one group measured again alike (another day or age within the stage) are one estimate of
+# those animals: their mean, n once. Rows unlike in these columns (mL/min against mL/min/kg, rest
+# against anaesthesia) stay one row per group.
+REPEAT_ALIKE = ("normalisation", "condition_id", "denominator", "temperature_c", "method_id", "part_id")
+
+
+def _averaged(row: dict) -> dict:
+    """A counted row with its repeated measures folded in: the mean value, the mean SD when every row has
+    one, the mean body mass of the rows that give it; ``_repeats`` names the rows folded in (id, line)."""
+    repeats = row.pop("_repeats")
+    if not repeats:
+        return row
+    rows = [row, *repeats]
+    mean = lambda xs: sum(xs) / len(xs)  # noqa: E731
+    sds = [r["sd_canonical"] for r in rows]
+    masses = [r["subject_body_mass_kg"] for r in rows if r["subject_body_mass_kg"] is not None]
+    return dict(row, value_canonical=mean([r["value_canonical"] for r in rows]),
+                sd_canonical=mean(sds) if None not in sds else None,
+                subject_body_mass_kg=mean(masses) if masses else None,
+                verified=min(r["verified"] for r in rows), _repeats=[(r["row_id"], r["line"]) for r in repeats])
+
+
 class CountedRows:
     """All rows of one species, stage and sex, and which of them count."""
 
@@ -69,21 +91,25 @@ class CountedRows:
         counted = []
         for (source, *_), same in by_measure.items():
             keep = self._independent_groups(source, {r["group_id"] for r in same})
-            seen: dict[str, str] = {}
+            seen: dict[str, dict] = {}
             # of two rows of the same animals, the one that needs no borrowed body mass counts
             for r in sorted(same, key=lambda r: r["normalisation"] == "none" and r["subject_body_mass_kg"] is None):
-                if r["group_id"] not in keep or r["group_id"] in seen:
+                first = seen.get(r["group_id"])
+                if first is not None and all(first[k] == r[k] for k in REPEAT_ALIKE):
+                    first["_repeats"].append(r)  # the same animals measured again the same way
+                    continue
+                if r["group_id"] not in keep or first is not None:
                     self.counted_elsewhere.add((source, r["row_id"]))
                 if r["group_id"] not in keep:
                     self.left_out[(source, r["row_id"])] = (f"group {r['group_id']} overlaps another group of "
                                                             "this source that is counted (groups.csv)")
-                elif r["group_id"] in seen:
+                elif first is not None:
                     self.left_out[(source, r["row_id"])] = (f"the same animals (group {r['group_id']}) are "
-                                                            f"counted by row {seen[r['group_id']]} of this source")
+                                                            f"counted by row {first['row_id']} of this source")
                 else:
-                    seen[r["group_id"]] = r["row_id"]
-                    counted.append(r)
-        return counted
+                    seen[r["group_id"]] = dict(r, _repeats=[])
+                    counted.append(seen[r["group_id"]])
+        return [_averaged(r) for r in counted]
 
     def _not_for_pooling(self, r: dict, present: set) -> str:
         if not stands_for_the_whole(r["part_id"], r["compartment_id"]):

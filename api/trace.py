@@ -116,8 +116,11 @@ def combination(compartment: str, parameter: str, unit: str, resolved) -> dict:
     if resolved.notes:
         entry["method"] = f"{entry['method']} ({'; '.join(resolved.notes)})"
     entry["reason"] = resolved.reason or None
-    entry["rows_used"] = [{"source": r.get("source_id"), "row_id": r.get("row_id"),
+    # a row with repeated measures folded in stands for each of them (their mean is its value)
+    entry["rows_used"] = [{"source": r.get("source_id"), "row_id": row_id,
                            "quantity": r.get("quantity_id"), "compartment": r.get("compartment_id"),
                            "route": r.get("_route"), "value_in_unit": json_scalar(r.get("_value")),
-                           "at": f"{r.get('file')}:{r.get('line')}"} for r in resolved.rows]
+                           "at": f"{r.get('file')}:{line}"}
+                          for r in resolved.rows
+                          for row_id, line in ((r.get("row_id"), r.get("line")), *r.get("_repeats", ()))]
     return entry

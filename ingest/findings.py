@@ -90,7 +90,7 @@ CODES: dict[str, str] = {
     "W305": "An organ's mass is above the body mass of its animals. Check the unit, the number and the body mass.",
     "W306": 'Parts of a compartment (part_of, or parts of parts.csv) of one group sum above their whole. Look for contents or a side stored as the whole.',
     "W307": 'The method is not accepted for this animal and quantity (vocab/methods.csv); pooling leaves the row out. Keep the row when the source prints it.',
-    "W308": 'The same group, quantity, compartment and method twice: the same animals counted twice. Give each set of animals its own group, or keep one row.',
+    "W308": 'The same group, quantity, compartment and method twice: sets average such rows as repeated measures of the same animals (n once). If they are other animals, give each set its own group; accept it when they are repeats.',
     "W309": 'A group and its subgroup (groups.csv) both give a value; pooling uses one. Accept in check_baseline.csv once reviewed.',
     "W310": "The value equals an end of its range, or the comment's 'from … to …'. Put range ends in low/high.",
     "W311": 'A reference_midpoint value that is not the middle of its range. Check the value and the range.',

@@ -321,8 +321,9 @@ SAME_MEASUREMENT = [*ANIMALS, "compartment", "quantity", "_part", "_denominator"
 
 
 def check_duplicate_groups(frame: pd.DataFrame, findings: Findings) -> None:
-    """The same animals, quantity, compartment, part and method given twice in one form: pooling would count
-    them twice. (One measurement printed absolute and per kg is two forms of one number, not a duplicate.)"""
+    """The same animals, quantity, compartment, part and method given twice in one form: sets average them
+    as repeated measures (api/rows.py), which is wrong when they are other animals under one group name.
+    (One measurement printed absolute and per kg is two forms of one number, not a duplicate.)"""
     have = frame[frame["_value_canonical"].notna()]
     dup = have.duplicated(SAME_MEASUREMENT, keep=False)
     for _key, group in have[dup].groupby(SAME_MEASUREMENT, dropna=False, sort=True):
@@ -331,8 +332,9 @@ def check_duplicate_groups(frame: pd.DataFrame, findings: Findings) -> None:
         for row in group.iloc[1:].to_dict("records"):
             findings.warn(row["_file"], row["_line"], "group",
                           f"group {row['_group']!r} already has {row['quantity']} of {row['compartment']} by the same "
-                          f"method at line {first['_line']} (row {first['id']}); give each set of animals its own "
-                          "group (e.g. one per diet or age), or keep one of the rows",
+                          f"method at line {first['_line']} (row {first['id']}); sets average them as repeated "
+                          "measures of the same animals: if they are other animals, give each set its own group "
+                          "(e.g. one per diet or age); if they are repeats, accept this in check_baseline.csv",
                           code="W308")
 
 

@@ -189,7 +189,8 @@ def test_model_compartments_are_volume_weighted(store):
     expected = sum(vols[p] * res.kp("neutral_c", p) for p in vols) / sum(vols.values())
     assert row["kp"] == pytest.approx(expected, rel=1e-9)
     assert row["kp_blood"] == pytest.approx(expected / 1.0)
-    assert sum(row["weights"].values()) == pytest.approx(1.0)
+    # weights are printed to 6 decimals: their sum is 1 within half a unit of the last digit per part
+    assert sum(row["weights"].values()) == pytest.approx(1.0, abs=len(row["weights"]) * 5e-7)
     # the store holds no rat bone volume: the lumped compartment cannot be weighted, and says why
     slow = model.loc[("neutral_c", "slowly_perfused")]
     assert slow["status"] == "gap" and "bone" in slow["reason"]

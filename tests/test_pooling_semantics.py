@@ -211,3 +211,30 @@ def test_a_hematocrit_of_an_arterial_sample_is_the_bloods(store):
     assert measured_compartment("blood_volume", "arterial_blood") == "arterial_blood"
     cover = store.gap_report(["rainbow_trout"], life_stage="adult").coverage.set_index("slot")
     assert cover.loc["hematocrit", "n_values"] == 1
+
+
+def test_repeated_measures_of_one_group_are_averaged_and_counted_once(store_from_tree, tmp_path):
+    """Invented for tests: six sheep whose GFR is measured on three days at rest (2, 3 and 4 mL/min/kg) and once
+    anaesthetised (1 mL/min/kg), beside another source's independent group (5 mL/min/kg, n 6). The repeats
+    are one estimate of the same animals (their mean, 3), not three studies and not only the first day;
+    the anaesthetised row is not averaged in."""
+    (tmp_path / "values").mkdir()
+    note = "invented for tests"
+    row = ("{id},sheep,adult,,female,,,{group},whole_body,gfr,,inulin_clearance,{condition},{value},mL/min/kg,sd,0.5,,,"
+           "mean,no,6,animals,60 kg,,,measured,Table 1,yes,,{note}")
+    files = {"repeats2026": [row.format(id=f"day{d}", group="all", condition="", value=v, note=note)
+                             for d, v in ((1, 2), (2, 3), (3, 4))]
+             + [row.format(id="anaesthetised", group="all", condition="anaesthesia", value=1, note=note)],
+             "other2026": [row.format(id="gfr", group="all", condition="", value=5, note=note)]}
+    bib = ""
+    for key, lines in files.items():
+        (tmp_path / "values" / f"{key}.csv").write_text(HEADER + "\n".join(lines) + "\n")
+        bib += f"@misc{{{key},\n  title = {{Invented for tests {key}}},\n  year = {{2026}},\n  note = {{{note}}}\n}}\n\n"
+    (tmp_path / "sources.bib").write_text(bib)
+    store = store_from_tree(tmp_path)
+    resolved = Resolver(store, "sheep").resolve("gfr")
+    assert sorted(r["row_id"] for r in resolved.rows) == ["day1", "gfr"]
+    assert resolved.estimate.value == pytest.approx((3 + 5) / 2 * 60 / 1000)  # L/h per kg: two groups of 6
+    assert any("day1, day2, day3: the same animals measured again alike" in n for n in resolved.notes)
+    used = trace(store, "sheep", "gfr").rows.set_index("row_id")
+    assert used.loc[["day1", "day2", "day3", "gfr"], "used"].all() and not used.loc["anaesthetised", "used"]

@@ -386,7 +386,9 @@ def test_same_group_counted_twice(tree):
     add(tree, V, id="c", group="other", compartment="spleen", quantity="tissue_mass", value="31", unit="g")
     assert warnings(tree, "W308") == [
         f"{V}:{second}: group: warning: group 'all' already has tissue_mass of spleen by the same method at line "
-        f"{first} (row a); give each set of animals its own group (e.g. one per diet or age), or keep one of the rows"]
+        f"{first} (row a); sets average them as repeated measures of the same animals: if they are other animals, "
+        "give each set its own group (e.g. one per diet or age); if they are repeats, accept this in "
+        "check_baseline.csv"]
 
 
 def test_two_forms_of_one_measurement_are_not_a_duplicate(tree):
