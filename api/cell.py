@@ -26,6 +26,7 @@ class Cell:
     mass: float | None = None  # kg, for volumes: volume × the tissue density used (closes the mass balance)
     stage: str | None = None  # the life stage whose rows gave a stage-fallback number
     conditions: tuple[str, ...] = ()  # the animals' states other than rest behind it (anaesthesia, as a fallback)
+    animals_kg: tuple[float, float] | None = None  # body masses of the animals behind it, when every row gives one
 
     @classmethod
     def gap(cls, unit: str, reason: str) -> "Cell":
@@ -53,6 +54,8 @@ class Cell:
             out["from_stage"] = self.stage
         if self.conditions:
             out["conditions"] = list(self.conditions)
+        if self.animals_kg:
+            out["animals_kg"] = list(self.animals_kg)
         return out
 
 

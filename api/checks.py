@@ -128,6 +128,21 @@ def studied_range_check(resolver, ps) -> None:
                                 f"this species' rows at this stage (margin ×{STUDIED_RANGE_MARGIN:g})"})
 
 
+def animals_mass_check(ps) -> None:
+    """Numbers whose animals all lie far from the set's body mass: a share measured in 15 kg piglets is
+    not a 100 kg finisher's (shares change with size); the same margin as the studied-range check."""
+    bw = ps.body_mass.value
+    if bw is None:
+        return
+    far = [f"{slot_id(comp, parameter)} ({low:.3g}–{high:.3g} kg)" for comp, parameter, cell in ps.cells()
+           if cell.animals_kg and parameter != "body_mass"
+           for low, high in [cell.animals_kg] if not low / STUDIED_RANGE_MARGIN <= bw <= high * STUDIED_RANGE_MARGIN]
+    if far:
+        ps.checks.append({"check": "numbers_from_animals_of_another_size", "status": "warn",
+                          "detail": f"at {bw:.4g} kg, these rest only on animals of other body masses (margin "
+                                    f"×{STUDIED_RANGE_MARGIN:g}): {', '.join(far)}"})
+
+
 def condition_check(ps) -> None:
     """Numbers that rest on animals not at rest (anaesthetised ones, where no conscious animals' rows exist)."""
     behind = {}

@@ -15,7 +15,7 @@ from ..schema.descriptors import ECTOTHERMS
 from ..schema.model import (AT_REST, LIVER, PARAMETERS, PORTAL_ORGANS, VESSELS_OF_LIVER, circulation, default_layout,
                             has_own_flow, is_portal, is_pulmonary, slot_id)
 from .cell import Cell
-from .checks import (class_check, close_balances, condition_check, source_sum_checks, studied_range_check,
+from .checks import (animals_mass_check, class_check, close_balances, condition_check, source_sum_checks, studied_range_check,
                      temperature_check)
 from .fallback import fall_back, from_stage, other_stage_rows, point_to_other_stages, stage_order
 from .layouts import REST, Layout, load_layout
@@ -50,12 +50,22 @@ def _scaled_cell(resolved: Resolved, factor: float, unit: str, body_mass: float 
     origin = ("measured" if est.n_studies == 1 else "pooled") if body_mass is None else \
         _origin_for(resolved, body_mass)
     return Cell(est.value, unit, origin, est.sd, est.se, est.low, est.high, est.sources, method,
-                verified_share=resolved.verified_share, conditions=_conditions(resolved.rows))
+                verified_share=resolved.verified_share, conditions=_conditions(resolved.rows),
+                animals_kg=_animals_kg([r.get("subject_body_mass_kg") for r in resolved.rows]))
 
 
 def _conditions(rows) -> tuple[str, ...]:
     """The states other than rest of the animals behind a number (vocab/conditions.csv)."""
     return tuple(sorted({r["condition_id"] for r in rows if r.get("condition_id", AT_REST) != AT_REST}))
+
+
+def _animals_kg(masses: list) -> tuple[float, float] | None:
+    """The body-mass range of the animals behind a number, when each row (or part) gives its animals' mass."""
+    return (min(masses), max(masses)) if masses and None not in masses else None
+
+
+def _animals_of(cells: list[Cell]) -> tuple[float, float] | None:
+    return _animals_kg([m for c in cells for m in (c.animals_kg or (None,))])
 
 
 def _sum_cells(cells: list[Cell], unit: str, what: str) -> Cell:
@@ -73,7 +83,7 @@ def _sum_cells(cells: list[Cell], unit: str, what: str) -> Cell:
     masses = [c.mass for c in cells]
     return Cell(sum(c.value for c in cells), unit, origin, None, se, None, None, sources, f"sum of {what}",
                 verified_share=_weighted_share(cells), mass=None if None in masses else sum(masses),
-                conditions=tuple(sorted({k for c in cells for k in c.conditions})))
+                conditions=tuple(sorted({k for c in cells for k in c.conditions})), animals_kg=_animals_of(cells))
 
 
 def _weighted_share(cells: list[Cell]) -> float | None:
@@ -339,7 +349,8 @@ def _combined(parts: list[Cell], value: float, method: str) -> Cell:
     sources = tuple(dict.fromkeys(s for c in parts for s in c.sources))
     depends = tuple(dict.fromkeys(d for c in parts for d in c.depends_on))
     return Cell(value, "L/h", "scaled", None, None, None, None, sources, method, depends_on=depends,
-                verified_share=_weighted_share(parts), conditions=tuple(sorted({k for c in parts for k in c.conditions})))
+                verified_share=_weighted_share(parts), conditions=tuple(sorted({k for c in parts for k in c.conditions})),
+                animals_kg=_animals_of(parts))
 
 
 def _from_other_stage(store, species, life_stage, number, **rows) -> Cell | None:
@@ -482,6 +493,7 @@ def parameter_set(store, species: str, *, life_stage: str = "adult", sex: str | 
     class_check(resolver, ps)
     temperature_check(resolver, ps)
     condition_check(ps)
+    animals_mass_check(ps)
     if bw_cell.origin == "given":
         studied_range_check(resolver, ps)
     for comp, cell in ps.volumes.items():

@@ -140,6 +140,23 @@ def test_a_body_mass_far_outside_the_studied_subjects_is_flagged(store):
     assert near.body_mass.origin == "given"
 
 
+def test_a_number_resting_only_on_animals_of_another_size_is_flagged(store):
+    """A share measured in grown cattle is not a 100 kg calf's: each number carries the body masses of the
+    animals behind it, and the set flags those far from its own body mass (the studied-range margin)."""
+    from bodyplan.api.checks import STUDIED_RANGE_MARGIN
+
+    calf = store.parameter_set("cattle", life_stage="juvenile", body_mass="100 kg")
+    low, high = calf.volumes["liver"].animals_kg
+    assert low / STUDIED_RANGE_MARGIN > 100
+    flagged = next(c for c in calf.checks if c["check"] == "numbers_from_animals_of_another_size")
+    assert flagged["status"] == "warn" and f"liver.volume ({low:.3g}–{high:.3g} kg)" in flagged["detail"]
+    liver = next(c for c in json.loads(calf.to_json())["compartments"] if c["compartment"] == "liver")
+    assert liver["volume"]["animals_kg"] == [low, high]
+    grown = store.parameter_set("cattle", life_stage="juvenile", body_mass=f"{(low + high) / 2} kg")
+    assert "liver.volume" not in next((c["detail"] for c in grown.checks
+                                       if c["check"] == "numbers_from_animals_of_another_size"), "")
+
+
 def test_one_precision_in_every_data_format(store):
     ps = store.parameter_set("rat", body_mass="0.25 kg")
     data = json.loads(ps.to_json())
