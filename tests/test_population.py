@@ -126,8 +126,21 @@ def test_without_sd_is_fixed_or_default_cv_and_marked(real_store):
              and v.parameter in ("volume", "blood_flow", "cardiac_output", "gfr")]
     assert drawn and all(v.marked == "default_cv" and v.cv == pytest.approx(0.25) for v in drawn)
     assert all("common practice, no source" in v.sd_from for v in drawn)
-    hct = next(v for v in default.variables if v.column == "hematocrit")
-    assert hct.marked == "fixed"  # no default rule for hematocrit
+
+
+
+def test_a_hematocrit_without_sd_stays_fixed_under_the_default_cv(real_store):
+    """There is no default CV for hematocrit: a species whose hematocrit rows give no SD keeps it fixed."""
+    for species in real_store.ids("species"):
+        try:
+            spec = population_spec(real_store, species, without_sd="default_cv", default_cv=0.25)
+        except PopulationError:  # a species whose set has gaps has no population
+            continue
+        hct = next((v for v in spec.variables if v.column == "hematocrit"), None)
+        if hct is not None and not hct.sd_rows:
+            assert hct.marked == "fixed" and hct.distribution == "fixed", species
+            return
+    pytest.fail("no species with a hematocrit without SD to check")
 
 
 # ---- recovery of the specified mean and SD -------------------------------------------------------
